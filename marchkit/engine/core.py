@@ -1,0 +1,274 @@
+"""The behaviour of one faulty memory under a march test — the semantics every engine uses.
+
+Semantics (the standard ones; see DEVELOPERS.md):
+* Initial contents are unknown.  Cells a fault involves are tried with every initial value;
+  other cells start unknown (``X``).  A fault is detected only if it is detected for every
+  initial value of its cells and, independently for each ⇕ element, for both orders.
+* A read detects when it returns, in any bit, a known value other than the expected one.
+  Reads before the test's first write expect nothing (the cell was never written) and never
+  detect.
+* A primitive ``<S/F/R>`` fires when its sensitising operation is applied while its state
+  conditions hold (conditions are judged on the values before the operation); state-sensitised
+  primitives act at the start and after every operation.  Inside one word a write is applied
+  to all bits at once; a fault's effect overrides what the write put in the victim.
+* SOF: writes do not reach the cell; a read returns, for that bit, the sense amplifier's
+  previous value.  The sense amplifier holds the last value read, per bit (unknown at first).
+* AF: see :mod:`marchkit.faults.primitives`; a read of several cells returns their AND; a read
+  of an address that selects no cell returns a fixed value, the same in every bit, unknown
+  which (so detection must hold for both).
+* DRF: when a cell holding the lost value is accessed (read or write of its word) at least τ
+  after its last access (or the start), it has flipped before the operation acts.
+"""
+
+from __future__ import annotations
+
+import itertools
+from dataclasses import dataclass
+
+X = 2  # unknown value
+
+
+def and3(a: int, b: int) -> int:
+    if a == 0 or b == 0:
+        return 0
+    if a == 1 and b == 1:
+        return 1
+    return X
+
+
+@dataclass(frozen=True)
+class Event:
+    """Where a read detected: segment index in the schedule, word, op index in the element."""
+
+    seg: int
+    word: int
+    op: int
+    seq: int        # position of the event in the run (for ordering)
+
+
+def determined_reads(sched) -> set[tuple[int, int]]:
+    """(segment index, op index) of reads that come after the test's first write."""
+    out = set()
+    seen_write = False
+    for si, seg in enumerate(sched.segments):
+        for k, kind in enumerate(seg.op_kinds):
+            if kind == "w":
+                seen_write = True
+            elif seen_write:
+                out.add((si, k))
+    return out
+
+
+class Run:
+    """One scenario of one fault instance: fixed initial values and ⇕ choices."""
+
+    def __init__(self, ctx, inst, inits, any_up):
+        self.ctx = ctx
+        self.inst = inst
+        self.kind = inst.kind
+        self.any_up = any_up
+        bits = ctx.bits
+        self.vals = {w: [X] * bits for w in ctx.words_up}
+        self.sa = [X] * bits
+        fam = self.kind.family
+        if fam in ("rules", "drf"):
+            self.cells = [divmod(c, bits) for c in inst.sites]
+            for (w, b), v in zip(self.cells, inits):
+                self.vals[w][b] = v
+        if fam == "drf":
+            self.last = 0
+            self.tau = ctx.tau_cycles(self.kind.tau)
+        if fam == "af":
+            a = inst.sites[0]
+            b = inst.sites[1] if len(inst.sites) > 1 else None
+            self.dec = {}
+            if self.kind.af == "none":
+                self.dec[a] = []
+                self.floating = inits[0]
+            elif self.kind.af == "alias":
+                self.dec[b] = [a]
+            elif self.kind.af == "multi":
+                self.dec[a] = [a, b]
+            else:
+                self.dec[a] = [a, b]
+                self.dec[b] = [a, b]
+        if fam == "sof":
+            self.sof = divmod(inst.sites[0], bits)
+        if fam == "rules":
+            self.apply_states()
+
+    # -- rules (primitives and classic models) --------------------------------------
+    def cell(self, i):
+        w, b = self.cells[i]
+        return self.vals[w][b]
+
+    def apply_states(self):
+        for rule in self.kind.rules:
+            if rule.vic.op is not None or (rule.agg is not None and rule.agg.op is not None):
+                continue
+            vi = len(self.cells) - 1
+            if self.cell(vi) != rule.vic.pre:
+                continue
+            if rule.agg is not None and self.cell(0) != rule.agg.pre:
+                continue
+            w, b = self.cells[vi]
+            self.vals[w][b] = rule.f
+
+    def access_rules(self, w, kind, data):
+        vi = len(self.cells) - 1
+        vw, vb = self.cells[vi]
+        pre_v = self.vals[vw][vb]
+        if vi == 1:
+            aw, ab = self.cells[0]
+            pre_a = self.vals[aw][ab]
+        out = None
+        if kind == "r":
+            out = list(self.vals[w])
+        post_v = None
+        for rule in self.kind.rules:
+            ca, cv = rule.agg, rule.vic
+            if ca is None:
+                if cv.op is None or w != vw or cv.op != kind or pre_v != cv.pre:
+                    continue
+                if kind == "w" and data[vb] != cv.val:
+                    continue
+                post_v = rule.f
+                if kind == "r":
+                    out[vb] = rule.r
+            elif ca.op is not None:
+                if w != aw or ca.op != kind or pre_a != ca.pre or pre_v != cv.pre:
+                    continue
+                if kind == "w" and data[ab] != ca.val:
+                    continue
+                post_v = rule.f
+            elif cv.op is not None:
+                if w != vw or cv.op != kind or pre_v != cv.pre or pre_a != ca.pre:
+                    continue
+                if kind == "w" and data[vb] != cv.val:
+                    continue
+                post_v = rule.f
+                if kind == "r":
+                    out[vb] = rule.r
+        if kind == "w":
+            self.vals[w] = list(data)
+        if post_v is not None:
+            self.vals[vw][vb] = post_v
+        self.apply_states()
+        return out
+
+    # -- one operation -----------------------------------------------------------------
+    def access(self, w, kind, data, t):
+        fam = self.kind.family
+        if fam == "rules":
+            out = self.access_rules(w, kind, data)
+        elif fam == "af":
+            targets = self.dec.get(w, [w])
+            if kind == "w":
+                for p in targets:
+                    self.vals[p] = list(data)
+                return None
+            if not targets:
+                out = [self.floating] * self.ctx.bits
+            else:
+                out = list(self.vals[targets[0]])
+                for p in targets[1:]:
+                    out = [and3(x, y) for x, y in zip(out, self.vals[p])]
+        elif fam == "sof":
+            cw, cb = self.sof
+            if kind == "w":
+                keep = self.vals[w][cb]
+                self.vals[w] = list(data)
+                if w == cw:
+                    self.vals[w][cb] = keep
+                return None
+            out = list(self.vals[w])
+            if w == cw:
+                out[cb] = self.sa[cb]
+        else:  # drf
+            (cw, cb), = self.cells
+            if w == cw:
+                if self.vals[cw][cb] == self.kind.drf_value and t - self.last >= self.tau:
+                    self.vals[cw][cb] = 1 - self.kind.drf_value
+                self.last = t
+            if kind == "w":
+                self.vals[w] = list(data)
+                return None
+            out = list(self.vals[w])
+        if kind == "r":
+            self.sa = list(out)
+        return out
+
+    def run(self):
+        """First detecting :class:`Event`, or None."""
+        ctx = self.ctx
+        seq = 0
+        for si, seg in enumerate(ctx.sched.segments):
+            if seg.element is None:
+                continue
+            up = seg.order == "up" or (seg.order == "any" and self.any_up[ctx.any_index[seg.element]])
+            words = ctx.words_up if up else ctx.words_down
+            bg = ctx.bg[seg.run]
+            n1 = ctx.n - 1
+            for w in words:
+                pos = ctx.rank[w] if up else n1 - ctx.rank[w]
+                base = seg.start + pos * seg.per_address
+                bgw = bg[w]
+                for k, kind in enumerate(seg.op_kinds):
+                    v = seg.op_values[k]
+                    data = [x ^ v for x in bgw]
+                    out = self.access(w, kind, data, base + seg.op_offsets[k])
+                    seq += 1
+                    if out is not None and (si, k) in ctx.determined:
+                        for o, e in zip(out, data):
+                            if o != X and o != e:
+                                return Event(si, w, k, seq)
+        return None
+
+
+class Context:
+    """What every scenario of a test on a (possibly projected) memory shares."""
+
+    def __init__(self, test, mem, sched, bg, words_up, rank, n):
+        self.test = test
+        self.mem = mem
+        self.sched = sched
+        self.bits = mem.bits
+        self.bg = bg                 # bg[run][word] -> list of bits
+        self.words_up = list(words_up)
+        self.words_down = self.words_up[::-1]
+        self.rank = rank             # word -> position in the full ⇑ order
+        self.n = n
+        self.determined = determined_reads(sched)
+        any_elems = [i for i, e in enumerate(test.elements) if e.order == "any"]
+        self.any_index = {e: j for j, e in enumerate(any_elems)}
+        self.n_any = len(any_elems)
+
+    def tau_cycles(self, tau) -> int:
+        from ..model import seconds_to_cycles
+
+        return seconds_to_cycles(tau, self.mem.clock_hz)
+
+
+def n_init_cells(kind) -> int:
+    if kind.family == "af":
+        return 1 if kind.af == "none" else 0   # the floating read value
+    return kind.arity if kind.family in ("rules", "drf") else 0
+
+
+def verdict(ctx, inst):
+    """(detected, first detecting Event in the canonical scenario) for one instance.
+
+    The canonical scenario runs every ⇕ element as ⇑ — the order the exported stimulus
+    uses; its event is the latest first detection over the initial values.
+    """
+    n_init = n_init_cells(inst.kind)
+    canonical = None
+    for any_up in itertools.product((True, False), repeat=ctx.n_any):
+        is_canon = all(any_up)
+        for inits in itertools.product((0, 1), repeat=n_init):
+            ev = Run(ctx, inst, inits, any_up).run()
+            if ev is None:
+                return False, None
+            if is_canon and (canonical is None or ev.seq > canonical.seq):
+                canonical = ev
+    return True, canonical

@@ -1,0 +1,227 @@
+"""Fault kinds: the static fault primitives, the classic models, stuck-open, address-decoder
+and data-retention faults — each a value with a canonical text form.
+
+Fault primitives use the ``<S/F/R>`` and ``<Sa;Sv/F/R>`` notation of van de Goor & Al-Ars,
+"Functional memory faults: a formal notation and a taxonomy", VTS 2000: ``S`` the
+sensitising state (``0``/``1``) or operation (``0w1``, ``1r1``, …) — for a two-cell
+primitive first on the aggressor, then on the victim —, ``F`` the victim's value afterwards,
+``R`` the read's output (``-`` when the victim is not read).
+"""
+
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass, field
+from fractions import Fraction
+
+from ..errors import FaultSpecError
+
+
+@dataclass(frozen=True)
+class Cond:
+    """A sensitising condition on one cell: a state (``op`` None) or an operation.
+
+    ``pre`` is the value the cell must hold; for ``op == 'w'`` ``val`` is the value written;
+    for ``op == 'r'`` the read is of ``pre``.
+    """
+
+    pre: int
+    op: str | None = None
+    val: int | None = None
+
+    @property
+    def text(self) -> str:
+        if self.op is None:
+            return str(self.pre)
+        if self.op == "w":
+            return f"{self.pre}w{self.val}"
+        return f"{self.pre}r{self.pre}"
+
+
+@dataclass(frozen=True)
+class Rule:
+    """One fault primitive.  ``agg`` is None for a single-cell primitive."""
+
+    vic: Cond
+    f: int
+    r: int | None = None
+    agg: Cond | None = None
+
+    @property
+    def text(self) -> str:
+        s = self.vic.text if self.agg is None else f"{self.agg.text};{self.vic.text}"
+        return f"<{s}/{self.f}/{'-' if self.r is None else self.r}>"
+
+
+_COND = r"([01])(?:([wr])([01]))?"
+_FP_RE = re.compile(rf"^<(?:{_COND};)?{_COND}/([01])/([01-])>$")
+
+
+def parse_rule(text: str) -> Rule:
+    """``<0w1/0/->`` or ``<1;0w1/0/->`` → :class:`Rule`, checked for sense."""
+    s = text.strip().replace(" ", "")
+    m = _FP_RE.match(s)
+    if not m:
+        raise FaultSpecError(f"{text!r} is not a fault primitive such as <0w1/0/-> or <1;0r0/1/1>")
+    a_pre, a_op, a_val, v_pre, v_op, v_val, f, r = m.groups()
+
+    def cond(pre, op, val):
+        pre = int(pre)
+        if op is None:
+            return Cond(pre)
+        if op == "r" and int(val) != pre:
+            raise FaultSpecError(f"{text!r}: a read of a cell holding {pre} is written {pre}r{pre}")
+        return Cond(pre, op, int(val))
+
+    agg = cond(a_pre, a_op, a_val) if a_pre is not None else None
+    vic = cond(v_pre, v_op, v_val)
+    rr = None if r == "-" else int(r)
+    if (vic.op == "r") != (rr is not None):
+        raise FaultSpecError(f"{text!r}: R is a value exactly when the victim is read, '-' otherwise")
+    if agg is not None and agg.op is not None and vic.op is not None:
+        raise FaultSpecError(f"{text!r}: a static primitive sensitises with at most one operation")
+    return Rule(vic, int(f), rr, agg)
+
+
+@dataclass(frozen=True)
+class FaultKind:
+    """A fault model at the level of one instance's behaviour.
+
+    ``family``: ``rules`` (a set of primitives acting together), ``sof``, ``af`` or ``drf``.
+    ``arity``: cells (or, for ``af``, words) one instance involves.
+    """
+
+    text: str
+    cls: str
+    family: str
+    arity: int
+    rules: tuple[Rule, ...] = ()
+    af: str | None = None          # none | alias | multi | cross
+    drf_value: int | None = None   # the value the cell loses
+    tau: Fraction | None = None    # seconds
+    description: str = field(default="", compare=False)
+
+    def __str__(self) -> str:
+        return self.text
+
+    @property
+    def is_primitive(self) -> bool:
+        """True for the 48 static primitives (one rule, reported per primitive)."""
+        return self.family == "rules" and len(self.rules) == 1 and self.cls in STATIC_CLASSES
+
+
+def _r(text):
+    return parse_rule(text)
+
+
+def _classify(rule: Rule) -> str:
+    v, a = rule.vic, rule.agg
+    if a is None:
+        if v.op is None:
+            return "SF"
+        if v.op == "w":
+            return "TF" if v.val != v.pre else "WDF"
+        if rule.f != v.pre:
+            return "RDF" if rule.r != v.pre else "DRDF"
+        return "IRF"
+    if a.op is None and v.op is None:
+        return "CFst"
+    if a.op is not None:
+        return "CFds"
+    if v.op == "w":
+        return "CFtr" if v.val != v.pre else "CFwd"
+    if rule.f != v.pre:
+        return "CFrd" if rule.r != v.pre else "CFdrd"
+    return "CFir"
+
+
+SINGLE_CLASSES = ("SF", "TF", "WDF", "RDF", "DRDF", "IRF")
+COUPLING_CLASSES = ("CFst", "CFds", "CFtr", "CFwd", "CFrd", "CFdrd", "CFir")
+STATIC_CLASSES = SINGLE_CLASSES + COUPLING_CLASSES
+
+
+def _static_texts() -> list[str]:
+    out = []
+    # single-cell, as listed by van de Goor & Al-Ars (VTS 2000)
+    out += ["<0/1/->", "<1/0/->", "<0w1/0/->", "<1w0/1/->", "<0w0/1/->", "<1w1/0/->",
+            "<0r0/1/1>", "<1r1/0/0>", "<0r0/1/0>", "<1r1/0/1>", "<0r0/0/1>", "<1r1/1/0>"]
+    for x in (0, 1):
+        for y in (0, 1):
+            out.append(f"<{x};{y}/{1 - y}/->")                      # CFst
+    for aop in ("0w0", "0w1", "1w0", "1w1", "0r0", "1r1"):
+        for z in (0, 1):
+            out.append(f"<{aop};{z}/{1 - z}/->")                    # CFds
+    for x in (0, 1):
+        out += [f"<{x};0w1/0/->", f"<{x};1w0/1/->"]                 # CFtr
+    for x in (0, 1):
+        out += [f"<{x};0w0/1/->", f"<{x};1w1/0/->"]                 # CFwd
+    for x in (0, 1):
+        out += [f"<{x};0r0/1/1>", f"<{x};1r1/0/0>"]                 # CFrd
+    for x in (0, 1):
+        out += [f"<{x};0r0/1/0>", f"<{x};1r1/0/1>"]                 # CFdrd
+    for x in (0, 1):
+        out += [f"<{x};0r0/0/1>", f"<{x};1r1/1/0>"]                 # CFir
+    return out
+
+
+def _primitive_kind(text: str) -> FaultKind:
+    rule = parse_rule(text)
+    return FaultKind(rule.text, _classify(rule), "rules", 1 if rule.agg is None else 2, (rule,))
+
+
+STATIC = tuple(_primitive_kind(t) for t in _static_texts())
+_BY_TEXT = {k.text: k for k in STATIC}
+
+
+def primitive(text: str) -> FaultKind:
+    """The fault kind of one primitive, static catalogue first."""
+    rule = parse_rule(text)
+    return _BY_TEXT.get(rule.text) or _primitive_kind(rule.text)
+
+
+SAF = (
+    FaultKind("SA0", "SAF", "rules", 1, (_r("<1/0/->"),), description="stuck at 0"),
+    FaultKind("SA1", "SAF", "rules", 1, (_r("<0/1/->"),), description="stuck at 1"),
+)
+TF = tuple(k for k in STATIC if k.cls == "TF")
+CFST = tuple(k for k in STATIC if k.cls == "CFst")
+CFIN = (
+    FaultKind("CFin<↑;↕>", "CFin", "rules", 2, (_r("<0w1;0/1/->"), _r("<0w1;1/0/->")),
+              description="an up transition of the aggressor inverts the victim"),
+    FaultKind("CFin<↓;↕>", "CFin", "rules", 2, (_r("<1w0;0/1/->"), _r("<1w0;1/0/->")),
+              description="a down transition of the aggressor inverts the victim"),
+)
+CFID = (
+    FaultKind("CFid<↑;0>", "CFid", "rules", 2, (_r("<0w1;1/0/->"),)),
+    FaultKind("CFid<↑;1>", "CFid", "rules", 2, (_r("<0w1;0/1/->"),)),
+    FaultKind("CFid<↓;0>", "CFid", "rules", 2, (_r("<1w0;1/0/->"),)),
+    FaultKind("CFid<↓;1>", "CFid", "rules", 2, (_r("<1w0;0/1/->"),)),
+)
+SOF = (FaultKind("SOF", "SOF", "sof", 1,
+                 description="stuck-open: writes do not reach the cell; a read returns the sense amplifier's previous value"),)
+AF = (
+    FaultKind("AF:none", "AF", "af", 1, af="none",
+              description="address a selects no cell (so cell a is selected by no address); a read of a returns a fixed value, all bits alike, unknown which"),
+    FaultKind("AF:alias", "AF", "af", 2, af="alias",
+              description="address b selects cell a instead of cell b (cell a has two addresses, cell b none)"),
+    FaultKind("AF:multi", "AF", "af", 2, af="multi",
+              description="address a selects cells a and b; a read returns the AND of both"),
+    FaultKind("AF:cross", "AF", "af", 2, af="cross",
+              description="addresses a and b both select cells a and b; a read returns the AND of both"),
+)
+
+
+def drf_kinds(taus) -> tuple[FaultKind, ...]:
+    from .catalogue import format_seconds
+
+    out = []
+    for tau in taus:
+        for x in (0, 1):
+            out.append(FaultKind(
+                f"DRF{x}(τ={format_seconds(tau)})", "DRF", "drf", 1, drf_value=x, tau=Fraction(tau),
+                description=f"a cell holding {x} loses it {format_seconds(tau)} after it was last written or read",
+            ))
+    return tuple(out)
+
+
+CLASSIC_CLASSES = ("SAF", "TF", "SOF", "AF", "CFin", "CFid", "CFst")
