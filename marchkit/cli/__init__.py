@@ -1,0 +1,65 @@
+"""Layer 7: the command line.  The only place that prints errors.
+
+Each command lives in its own module with ``register(subparsers)``; the module's ``run``
+function is stored as the parser's default ``func`` and returns the exit status.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+
+COMMANDS = ("library", "show", "check", "grade", "compare", "export", "demo")
+
+
+class Parser(argparse.ArgumentParser):
+    def error(self, message):  # usage errors: exit 2, one clear line, no traceback
+        self.print_usage(sys.stderr)
+        sys.stderr.write(f"{self.prog}: error: {message}\n")
+        raise SystemExit(2)
+
+
+def build_parser() -> argparse.ArgumentParser:
+    from .. import __version__
+
+    p = Parser(
+        prog="marchkit",
+        description="Write, fault-simulate, grade, compare and export march tests for embedded memories.",
+    )
+    p.add_argument("--version", action="version", version=f"marchkit {__version__}")
+    sub = p.add_subparsers(dest="command", metavar="COMMAND", parser_class=Parser)
+    import importlib
+
+    for name in COMMANDS:
+        try:
+            mod = importlib.import_module(f".cmd_{name}", __name__)
+        except ModuleNotFoundError as e:
+            if e.name and e.name.endswith(f"cmd_{name}"):
+                continue
+            raise
+        mod.register(sub)
+    return p
+
+
+def main(argv=None) -> int:
+    from ..errors import MarchkitError
+
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    if not getattr(args, "func", None):
+        parser.print_help()
+        return 2
+    try:
+        return int(args.func(args) or 0)
+    except MarchkitError as e:
+        sys.stderr.write(e.render() + "\n")
+        return e.exit_code
+    except KeyboardInterrupt:
+        sys.stderr.write("interrupted\n")
+        return 130
+    except BrokenPipeError:
+        return 0
+
+
+def entry() -> None:  # pragma: no cover
+    sys.exit(main())
