@@ -16,7 +16,8 @@ ASCII_ORDER = {"up": "up", "down": "down", "any": "any"}
 def format_amount(a: Decimal) -> str:
     if a == 0:  # also -0, which the grammar cannot read
         return "0"
-    return format(a.normalize(), "f")
+    s = format(a, "f")  # exact; Decimal.normalize() would round to the context's 28 digits
+    return s.rstrip("0").rstrip(".") if "." in s else s
 
 
 def format_op(op: Op, ascii: bool = False) -> str:

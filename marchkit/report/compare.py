@@ -1,0 +1,300 @@
+"""Comparing march tests on one memory and one fault list: rows, the Pareto front, sorting,
+and the comparison as JSON or CSV.
+
+A row is one graded test.  Its *yield* is the number of fault instances it detects per
+1 000 clock cycles of test time (delays included), the figure behind "what do I buy with
+each extra cycle?".  The Pareto front is the set of tests that no other test beats on both
+counts at once: test B *dominates* test A when B takes no more cycles and reaches at least
+A's total coverage, and is strictly better in one of the two.  A test is on the front when no
+other test dominates it (two tests with equal cycles and equal coverage are both on it).
+
+Nothing here imports matplotlib; the plots live in :mod:`marchkit.report.plots`.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+from dataclasses import dataclass, field
+from fractions import Fraction
+from typing import Callable, Sequence
+
+from ..errors import InputError
+
+# sort keys: name -> (what it sorts by, how the rows go)
+SORT_KEYS = {
+    "given": "the order the tests were given in",
+    "name": "test name, A to Z",
+    "length": "operations per cell (k of k·n), shortest first",
+    "cycles": "clock cycles (test time), fewest first",
+    "coverage": "total coverage, highest first",
+    "yield": "detected faults per 1 000 cycles, highest first",
+}
+DEFAULT_SORT = "cycles"
+
+
+@dataclass(frozen=True)
+class Row:
+    """One test in a comparison."""
+
+    label: str                  # the name shown (unique within the comparison)
+    length: str                 # e.g. "10n" or "12n + 2 Del"
+    ops_per_cell: int
+    ops: int
+    cycles: int
+    seconds: float
+    instances: int
+    detected: int
+    coverage: float
+    classes: dict[str, float | None]   # class -> coverage (None: no instances on this memory)
+    pareto: bool
+    position: int               # index in the order given
+    result: object = field(default=None, compare=False, repr=False)   # the GradeResult
+
+    @property
+    def per_kcycle(self) -> float:
+        """Detected fault instances per 1 000 clock cycles."""
+        return 1000.0 * self.detected / self.cycles if self.cycles else 0.0
+
+    @property
+    def exact_coverage(self) -> Fraction:
+        return Fraction(self.detected, self.instances) if self.instances else Fraction(0)
+
+
+@dataclass(frozen=True)
+class Comparison:
+    """Rows (in the chosen order) plus what they were graded on."""
+
+    rows: tuple[Row, ...]
+    memory: dict                # the memory as the grade JSON gives it
+    classes: tuple[str, ...]    # fault classes graded, in catalogue order
+    class_instances: dict[str, int]
+    faults_spec: str
+    pairs_spec: str
+    memory_label: str = ""
+
+    @property
+    def front(self) -> tuple[Row, ...]:
+        """The rows on the Pareto front, fewest cycles first."""
+        return tuple(sorted((r for r in self.rows if r.pareto), key=lambda r: (r.cycles, -r.exact_coverage, r.position)))
+
+    def sorted(self, key: str = DEFAULT_SORT) -> "Comparison":
+        return Comparison(sort_rows(self.rows, key), self.memory, self.classes, self.class_instances,
+                          self.faults_spec, self.pairs_spec, self.memory_label)
+
+    # ---- output -------------------------------------------------------------------------
+    def to_json(self) -> dict:
+        """``{"memory", "faults", "tests": [{"name", "ops", "cycles", "seconds", "coverage",
+        "classes", "pareto", ...}]}``; each test also carries its length, detected and
+        instance counts and detected faults per 1 000 cycles."""
+        return {
+            "memory": self.memory,
+            "faults": list(self.classes),
+            "tests": [
+                {
+                    "name": r.label,
+                    "length": r.length,
+                    "ops_per_cell": r.ops_per_cell,
+                    "ops": r.ops,
+                    "cycles": r.cycles,
+                    "seconds": r.seconds,
+                    "instances": r.instances,
+                    "detected": r.detected,
+                    "coverage": r.coverage,
+                    "detected_per_1000_cycles": round(r.per_kcycle, 6),
+                    "classes": dict(r.classes),
+                    "pareto": r.pareto,
+                }
+                for r in self.rows
+            ],
+        }
+
+    def to_csv(self) -> str:
+        """One line per test; per-class coverage columns are named ``coverage:CLASS``."""
+        buf = io.StringIO()
+        w = csv.writer(buf, lineterminator="\n")
+        w.writerow(["test", "length", "ops_per_cell", "ops", "cycles", "seconds", "instances",
+                    "detected", "coverage", "detected_per_1000_cycles", "pareto"]
+                   + [f"coverage:{c}" for c in self.classes])
+        for r in self.rows:
+            w.writerow([r.label, r.length, r.ops_per_cell, r.ops, r.cycles, repr(float(r.seconds)),
+                        r.instances, r.detected, f"{r.coverage:.6f}", f"{r.per_kcycle:.6f}",
+                        "yes" if r.pareto else "no"]
+                       + ["" if r.classes.get(c) is None else f"{r.classes[c]:.6f}" for c in self.classes])
+        return buf.getvalue()
+
+
+# ---- the Pareto front -----------------------------------------------------------------
+
+def dominates(a: tuple[int, Fraction], b: tuple[int, Fraction]) -> bool:
+    """True when point ``a`` = (cycles, coverage) dominates ``b``."""
+    return a[0] <= b[0] and a[1] >= b[1] and (a[0] < b[0] or a[1] > b[1])
+
+
+def pareto_flags(points: Sequence[tuple[int, object]]) -> list[bool]:
+    """For each (cycles, coverage) point: is it on the Pareto front?
+
+    Coverage may be a float or an exact fraction; compare like with like.
+    """
+    pts = list(points)
+    return [not any(dominates(q, p) for j, q in enumerate(pts) if j != i) for i, p in enumerate(pts)]
+
+
+# ---- rows from grade results ----------------------------------------------------------
+
+def memory_label(mem) -> str:
+    """A short description of a memory: ``kestrel_l1_sram 1024×16 mux 4 @ 200 MHz``."""
+    name = getattr(mem, "name", "") or "memory"
+    text = f"{name} {mem.words}×{mem.bits}"
+    if getattr(mem, "mux", 1) != 1:
+        text += f" mux {mem.mux}"
+    return text + f" @ {format_frequency(mem.clock_hz)}"
+
+
+def format_frequency(hz) -> str:
+    hz = float(hz)
+    for unit, scale in (("GHz", 1e9), ("MHz", 1e6), ("kHz", 1e3)):
+        if hz >= scale:
+            return f"{hz / scale:.4g} {unit}"
+    return f"{hz:.4g} Hz"
+
+
+def format_time(seconds: float) -> str:
+    """``12.5 µs``, ``3.2 ms``, ``0.2 s`` — four significant digits at most."""
+    s = float(seconds)
+    if s == 0:
+        return "0 s"
+    for unit, scale in (("s", 1.0), ("ms", 1e-3), ("µs", 1e-6), ("ns", 1e-9)):
+        if abs(s) >= scale:
+            return f"{s / scale:.4g} {unit}"
+    return f"{s / 1e-9:.3g} ns"
+
+
+def unique_labels(names: Sequence[str]) -> list[str]:
+    """Names made unique for display: unnamed tests become ``test 1``, ``test 2`` …; a name
+    used twice gets `` (2)``, `` (3)`` …"""
+    out: list[str] = []
+    seen: dict[str, int] = {}
+    unnamed = 0
+    for n in names:
+        if not n:
+            unnamed += 1
+            n = f"test {unnamed}"
+        k = seen.get(n, 0) + 1
+        seen[n] = k
+        out.append(n if k == 1 else f"{n} ({k})")
+    return out
+
+
+def compare_results(results: Sequence, labels: Sequence[str] | None = None) -> Comparison:
+    """A comparison from grade results (one per test, all on one memory and one fault list)."""
+    results = list(results)
+    if not results:
+        raise InputError("nothing to compare: give at least one test")
+    first = results[0]
+    classes = tuple(c.cls for c in first.classes)
+    counts = {c.cls: c.instances for c in first.classes}
+    for res in results[1:]:
+        if res.memory != first.memory:
+            raise InputError("the tests to compare were graded on different memories")
+        if (res.faults_spec, res.pairs_spec) != (first.faults_spec, first.pairs_spec) or \
+                {c.cls: c.instances for c in res.classes} != counts:
+            raise InputError("the tests to compare were graded on different fault lists")
+    if labels is None:
+        labels = unique_labels([r.test.name for r in results])
+    elif len(labels) != len(results):
+        raise ValueError("one label per result")
+    flags = pareto_flags([(r.cycles, _exact(r.total)) for r in results])
+    rows = []
+    for i, (res, label, on_front) in enumerate(zip(results, labels, flags)):
+        t = res.test
+        rows.append(Row(
+            label=label,
+            length=getattr(t, "length_text", f"{t.ops_per_cell}n"),
+            ops_per_cell=t.ops_per_cell,
+            ops=int(res.ops),
+            cycles=int(res.cycles),
+            seconds=float(res.seconds),
+            instances=int(res.total.instances),
+            detected=int(res.total.detected),
+            coverage=float(res.total.coverage),
+            classes={c.cls: (float(c.coverage) if c.instances else None) for c in res.classes},
+            pareto=on_front,
+            position=i,
+            result=res,
+        ))
+    js = first.to_json()
+    return Comparison(tuple(rows), js.get("memory", {}), classes, counts, first.faults_spec,
+                      first.pairs_spec, memory_label(first.memory))
+
+
+def _exact(total) -> Fraction:
+    return Fraction(total.detected, total.instances) if total.instances else Fraction(0)
+
+
+def compare_tests(tests: Sequence, mem, faults: str = "static", pairs: str = "neighbours",
+                  retention=None, engine: str = "fast",
+                  progress: Callable[[int, int, str], None] | None = None,
+                  labels: Sequence[str] | None = None, sort: str = "given") -> Comparison:
+    """Grade every test on ``mem`` and compare them.
+
+    ``progress(i, n, label)`` is called before test ``i`` (0-based) of ``n`` and once more
+    with ``i == n`` at the end.
+    """
+    from ..grade import grade
+
+    tests = list(tests)
+    if not tests:
+        raise InputError("nothing to compare: give at least one test")
+    labels = list(labels) if labels is not None else unique_labels([t.name for t in tests])
+    kw = {} if retention is None else {"retention": tuple(retention)}
+    results = []
+    for i, (t, label) in enumerate(zip(tests, labels)):
+        if progress:
+            progress(i, len(tests), label)
+        results.append(grade(t, mem, faults=faults, pairs=pairs, engine=engine, **kw))
+    if progress:
+        progress(len(tests), len(tests), "")
+    return compare_results(results, labels).sorted(sort)
+
+
+# ---- sorting --------------------------------------------------------------------------
+
+def sort_rows(rows: Sequence[Row], key: str = DEFAULT_SORT) -> tuple[Row, ...]:
+    """Rows sorted by one of :data:`SORT_KEYS` or by a class name (that class's coverage,
+    highest first).  Ties go to fewer cycles, then to the order given."""
+    rows = list(rows)
+    tie = lambda r: (r.cycles, r.position)  # noqa: E731
+    k = key.strip().lower()
+    if k == "given":
+        out = sorted(rows, key=lambda r: r.position)
+    elif k == "name":
+        out = sorted(rows, key=lambda r: (r.label.casefold(), r.position))
+    elif k == "length":
+        out = sorted(rows, key=lambda r: (r.ops_per_cell, *tie(r)))
+    elif k in ("cycles", "time"):
+        out = sorted(rows, key=lambda r: (r.cycles, -r.exact_coverage, r.position))
+    elif k == "coverage":
+        out = sorted(rows, key=lambda r: (-r.exact_coverage, *tie(r)))
+    elif k == "yield":
+        out = sorted(rows, key=lambda r: (-Fraction(r.detected, max(1, r.cycles)), *tie(r)))
+    else:
+        classes = {c.lower(): c for r in rows for c in r.classes}
+        if k not in classes:
+            raise InputError(f"cannot sort by {key!r}; sort keys: " + ", ".join(SORT_KEYS)
+                             + (", or a class graded: " + ", ".join(dict.fromkeys(c for r in rows for c in r.classes)) if rows else ""))
+        c = classes[k]
+        out = sorted(rows, key=lambda r: (-(r.classes.get(c) or 0.0), *tie(r)))
+    return tuple(out)
+
+
+def check_sort_key(key: str, classes: Sequence[str]) -> str:
+    """Validate a sort key before any grading; return it normalised."""
+    k = key.strip().lower()
+    if k in SORT_KEYS or k == "time":
+        return k
+    for c in classes:
+        if c.lower() == k:
+            return k
+    raise InputError(f"cannot sort by {key!r}; sort keys: " + ", ".join(SORT_KEYS)
+                     + (", or a class graded: " + ", ".join(classes) if classes else ""))
