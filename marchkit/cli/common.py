@@ -17,7 +17,9 @@ DEFAULT_WORDS = 64
 def console(stderr: bool = False):
     from rich.console import Console
 
-    return Console(stderr=stderr, highlight=False, soft_wrap=False)
+    stream = sys.stderr if stderr else sys.stdout
+    width = None if stream.isatty() else 132
+    return Console(stderr=stderr, highlight=False, soft_wrap=False, width=width)
 
 
 def add_memory_options(p) -> None:

@@ -1,0 +1,148 @@
+"""`marchkit grade TEST`: which faults a test catches on a memory, and at what cost."""
+
+from __future__ import annotations
+
+import json
+import sys
+
+
+def register(sub):
+    from .common import add_fault_options, add_memory_options
+
+    p = sub.add_parser(
+        "grade", help="fault-simulate a test on a memory and grade its coverage",
+        description="Fault-simulate TEST (a library name, a file, or a notation starting with '{') on a "
+        "memory model and report coverage per fault class, with operations, cycles and test time.",
+    )
+    p.add_argument("test", metavar="TEST")
+    add_memory_options(p)
+    add_fault_options(p)
+    g = p.add_argument_group("output")
+    g.add_argument("--json", action="store_true", help="print the result as JSON")
+    g.add_argument("--primitives", action="store_true", help="also list every static fault primitive")
+    g.add_argument("--report", metavar="FILE.html", help="write a self-contained HTML report")
+    g.add_argument("--force", action="store_true", help="replace an existing report file")
+    p.set_defaults(func=run)
+
+
+def fmt_time(seconds: float) -> str:
+    for unit, scale in (("s", 1), ("ms", 1e3), ("µs", 1e6), ("ns", 1e9)):
+        if seconds * scale >= 1 or unit == "ns":
+            return f"{seconds * scale:.4g} {unit}"
+    return f"{seconds} s"  # pragma: no cover
+
+
+def fmt_clock(hz) -> str:
+    hz = float(hz)
+    for unit, scale in (("GHz", 1e9), ("MHz", 1e6), ("kHz", 1e3)):
+        if hz >= scale:
+            return f"{hz / scale:g} {unit}"
+    return f"{hz:g} Hz"
+
+
+def memory_line(mem) -> str:
+    from ..model import background_names
+
+    name = f"{mem.name}: " if mem.name else ""
+    scr = ""
+    if mem.scramble_bits is not None or mem.scramble_xor:
+        scr = ", scrambled"
+    bgs = background_names(mem)
+    return (f"{name}{mem.words} × {mem.bits} bit{'s' if mem.bits > 1 else ''}, mux {mem.mux} "
+            f"({mem.rows} rows × {mem.columns} columns{scr}), order {mem.order}, "
+            f"background{'s' if len(bgs) > 1 else ''} {', '.join(bgs)}, {fmt_clock(mem.clock_hz)}")
+
+
+def element_label(test, index) -> str:
+    if index is None:
+        return "—"
+    from ..notation.printer import format_item
+
+    return f"M{index} {format_item(test.elements[index])}"
+
+
+def make_progress(enabled: bool):
+    """A callback for the engine that drives a rich progress bar on a terminal."""
+    if not enabled:
+        return None, None
+    from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
+
+    prog = Progress(TextColumn("{task.description}"), BarColumn(), TimeElapsedColumn(),
+                    console=__import__("rich.console", fromlist=["Console"]).Console(stderr=True),
+                    transient=True)
+    task = prog.add_task("grading", total=1)
+
+    def cb(what, i, n):
+        prog.update(task, total=max(n, 1), completed=i, description=f"grading: {what}")
+
+    return prog, cb
+
+
+def run(args) -> int:
+    from ..grade import grade
+    from ..notation import format_notation
+    from .common import console, load_test, memory_from_args, retention_from_args
+
+    test = load_test(args.test)
+    mem = memory_from_args(args)
+    prog, cb = make_progress(sys.stderr.isatty() and not args.json)
+    if prog:
+        with prog:
+            res = grade(test, mem, args.faults, args.pairs, retention_from_args(args), args.engine, cb)
+    else:
+        res = grade(test, mem, args.faults, args.pairs, retention_from_args(args), args.engine)
+    if args.report:
+        from ..report import write_html_report
+
+        write_html_report(res, args.report, force=args.force)
+    if args.json:
+        print(json.dumps(res.to_json(), indent=2, ensure_ascii=False))
+        return 0
+    show_result(res, console(), primitives=args.primitives)
+    if args.report:
+        console().print(f"report written to {args.report}")
+    return 0
+
+
+def show_result(res, con, primitives=False) -> None:
+    from rich.table import Table
+
+    from ..notation import format_notation
+
+    t = res.test
+    con.print(f"[bold]{t.display_name}[/bold]  {t.length_text}   {format_notation(t)}")
+    con.print(f"memory  {memory_line(res.memory)}")
+    con.print(f"faults  {res.faults_spec}   pairs {res.pairs_spec}   engine {res.engine}")
+    table = Table(show_edge=False, pad_edge=False)
+    table.add_column("class", style="bold")
+    table.add_column("instances", justify="right")
+    table.add_column("detected", justify="right")
+    table.add_column("coverage", justify="right")
+    table.add_column("all found by", no_wrap=True)
+    table.add_column("why some are missed")
+    for c in res.classes:
+        cov = f"{100 * c.coverage:.2f}%"
+        style = "" if c.detected == c.instances else ("red" if c.detected == 0 else "yellow")
+        table.add_row(c.cls, f"{c.instances:,}", f"{c.detected:,}", f"[{style}]{cov}[/{style}]" if style else cov,
+                      element_label(t, c.complete_by) if c.detected else "—", c.reason)
+    tot = res.total
+    table.add_section()
+    table.add_row("total", f"{tot.instances:,}", f"{tot.detected:,}", f"{100 * tot.coverage:.2f}%", "", "")
+    con.print(table)
+    if res.empty_classes:
+        con.print(f"no instances in this pair scope: {', '.join(res.empty_classes)}")
+    if primitives and res.primitives:
+        pt = Table(title="static fault primitives", title_justify="left", show_edge=False, pad_edge=False)
+        for col in ("primitive", "class", "instances", "detected", "why some are missed"):
+            pt.add_column(col, justify="right" if col in ("instances", "detected") else "left")
+        for p in res.primitives:
+            pt.add_row(p.fault, p.cls, f"{p.instances:,}", f"{p.detected:,}", p.reason)
+        con.print(pt)
+    runs = len(res.memory.backgrounds) if res.memory.backgrounds else 1
+    delays = len(t.delays)
+    con.print(
+        f"cost    {t.ops_per_cell} ops per address per run · {res.ops:,} operations · {res.cycles:,} cycles"
+        f" · {fmt_time(res.seconds)} at {fmt_clock(res.memory.clock_hz)}"
+        + (f" (delays included: {delays} per run)" if delays else "")
+    )
+    con.print(f"[dim]graded {res.total.instances:,} fault instances in {res.elapsed:.3g} s[/dim]")

@@ -1,0 +1,171 @@
+"""The grader: runs an engine over a fault selection and summarises the verdicts."""
+
+from __future__ import annotations
+
+import time
+from dataclasses import dataclass, field
+from fractions import Fraction
+
+from .reasons import reason_for
+
+
+@dataclass(frozen=True)
+class ClassRow:
+    cls: str
+    instances: int
+    detected: int
+    coverage: float
+    complete_by: int | None      # element index (0-based) by which every detected one is
+    reason: str                  # "" when the whole class is detected
+
+
+@dataclass(frozen=True)
+class PrimitiveRow:
+    fault: str
+    cls: str
+    instances: int
+    detected: int
+    reason: str
+
+
+@dataclass(frozen=True)
+class Total:
+    instances: int
+    detected: int
+    coverage: float
+
+
+def _cov(d, n):
+    return d / n if n else 1.0
+
+
+@dataclass
+class GradeResult:
+    test: object
+    memory: object
+    faults_spec: str
+    pairs_spec: str
+    ops: int
+    cycles: int
+    seconds: float
+    classes: list
+    primitives: list
+    total: Total
+    kinds: list = field(repr=False, default_factory=list)
+    engine: str = "fast"
+    elapsed: float = 0.0
+    empty_classes: list = field(default_factory=list)
+
+    def to_json(self) -> dict:
+        from ..notation import format_notation
+
+        return {
+            "test": {"name": self.test.name, "notation": format_notation(self.test),
+                     "ops_per_cell": self.test.ops_per_cell},
+            "memory": self.memory.describe(),
+            "ops": self.ops,
+            "cycles": self.cycles,
+            "seconds": self.seconds,
+            "classes": [{"class": c.cls, "instances": c.instances, "detected": c.detected,
+                         "coverage": c.coverage} for c in self.classes],
+            "primitives": [{"fault": p.fault, "class": p.cls, "instances": p.instances,
+                            "detected": p.detected} for p in self.primitives],
+            "total": {"instances": self.total.instances, "detected": self.total.detected,
+                      "coverage": self.total.coverage},
+        }
+
+
+def _structure(inst, mem, rank) -> str:
+    """How the cells of a missed instance sit, in the words the fast engine reports."""
+    if len(inst.sites) == 1:
+        return "single"
+    if inst.kind.family == "af":
+        a, b = inst.sites
+        return "a first" if rank[a] < rank[b] else "b first"
+    wa, wv = (s // mem.bits for s in inst.sites)
+    if wa == wv:
+        return "same word"
+    return "aggressor first" if rank[wa] < rank[wv] else "victim first"
+
+
+def _reference_kinds(test, mem, selection, scope, sched, progress=None):
+    from ..engine.fast import KindResult
+    from ..engine.reference import reference_verdicts
+    from ..faults import enumerate_instances
+
+    from ..model import address_order, ranks
+
+    rank = ranks(address_order(mem))
+    out = []
+    kinds = list(selection.kinds)
+    for i, kind in enumerate(kinds):
+        if progress:
+            progress(kind.text, i, len(kinds))
+        insts = list(enumerate_instances(kind, mem, scope))
+        res = KindResult(kind)
+        for inst, (det, where) in zip(insts, reference_verdicts(test, mem, insts, sched)):
+            res.instances += 1
+            if det:
+                res.detected += 1
+                res.merge_element(where.element)
+            else:
+                res.missed_structures.add(_structure(inst, mem, rank))
+        out.append(res)
+    if progress:
+        progress("done", len(kinds), len(kinds))
+    return out
+
+
+def grade_kinds(test, mem, selection, scope, engine="fast", sched=None, progress=None):
+    """Per-kind results (``KindResult``) of ``test`` on ``mem``."""
+    from ..model import schedule
+
+    sched = sched or schedule(test, mem)
+    if engine == "reference":
+        return _reference_kinds(test, mem, selection, scope, sched, progress)
+    from ..engine.fast import Engine
+
+    return Engine(test, mem, sched).grade(selection, scope, progress)
+
+
+def grade(test, mem, faults="static", pairs="neighbours", retention=None, engine="fast", progress=None) -> GradeResult:
+    """Grade ``test`` on ``mem`` against a fault selection (text or FaultSelection)."""
+    from ..faults import DEFAULT_RETENTION, parse_pairs, select_faults
+    from ..model import schedule
+    from ..notation import ensure_consistent
+
+    ensure_consistent(test)
+    selection = select_faults(faults, retention or DEFAULT_RETENTION) if isinstance(faults, str) else faults
+    scope = parse_pairs(pairs) if isinstance(pairs, str) else pairs
+    sched = schedule(test, mem)
+    t0 = time.perf_counter()
+    kinds = grade_kinds(test, mem, selection, scope, engine, sched, progress)
+    elapsed = time.perf_counter() - t0
+    by_class: dict[str, list] = {}
+    for r in kinds:
+        by_class.setdefault(r.kind.cls, []).append(r)
+    classes, empty = [], []
+    for cls, rs in by_class.items():
+        n = sum(r.instances for r in rs)
+        d = sum(r.detected for r in rs)
+        if n == 0:
+            empty.append(cls)
+            continue
+        complete = [r.complete_by for r in rs if r.complete_by is not None]
+        missed = set().union(*(r.missed_structures for r in rs if r.detected < r.instances)) if d < n else set()
+        classes.append(ClassRow(cls, n, d, _cov(d, n), max(complete) if complete else None,
+                                reason_for(cls, missed, partial=d > 0) if d < n else ""))
+    prims = [
+        PrimitiveRow(r.kind.text, r.kind.cls, r.instances, r.detected,
+                     reason_for(r.kind.cls, r.missed_structures, partial=r.detected > 0) if r.detected < r.instances else "")
+        for r in kinds if r.kind.is_primitive and r.instances
+    ]
+    n = sum(c.instances for c in classes)
+    d = sum(c.detected for c in classes)
+    spec = faults if isinstance(faults, str) else faults.spec
+    return GradeResult(
+        test=test, memory=mem, faults_spec=spec, pairs_spec=scope.spec, ops=sched.ops,
+        cycles=sched.cycles, seconds=float(Fraction(sched.cycles) / mem.clock_hz),
+        classes=classes, primitives=prims, total=Total(n, d, _cov(d, n)), kinds=kinds,
+        engine=engine, elapsed=elapsed, empty_classes=empty,
+    )
