@@ -1,0 +1,23 @@
+import os
+import sys
+from pathlib import Path
+
+import pytest
+
+ROOT = Path(__file__).resolve().parents[1]
+
+
+@pytest.fixture
+def cli(capsys):
+    """Run the command line in-process: returns (exit status, stdout, stderr)."""
+    from marchkit.cli import main
+
+    def run(*argv):
+        try:
+            code = main(list(argv))
+        except SystemExit as e:  # argparse usage errors
+            code = e.code
+        out = capsys.readouterr()
+        return code, out.out, out.err
+
+    return run

@@ -1,0 +1,162 @@
+"""The command line as a user meets it: exit codes and the text printed."""
+
+import json
+import os
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+
+ROOT = Path(__file__).resolve().parents[1]
+
+
+def test_version(cli):
+    from marchkit import __version__
+
+    code, out, err = cli("--version")
+    assert code == 0 and out.strip() == f"marchkit {__version__}"
+
+
+def test_library_lists_the_published_tests(cli):
+    code, out, err = cli("library")
+    assert code == 0
+    for name in ("MATS+", "March C-", "March SS", "March LR", "IFA-9", "March G", "PMOVI"):
+        assert name in out
+    assert "10n" in out and "22n" in out
+
+
+def test_library_json(cli):
+    code, out, _ = cli("library", "--json")
+    rows = json.loads(out)
+    assert len(rows) >= 22
+    cminus = next(r for r in rows if r["name"] == "March C-")
+    assert cminus["ops_per_cell"] == 10  # van de Goor 1991 (10n)
+
+
+def test_show_both_spellings(cli):
+    code, out, _ = cli("show", "march-c-")
+    assert code == 0 and "{⇕(w0); ⇑(r0,w1); ⇑(r1,w0); ⇓(r0,w1); ⇓(r1,w0); ⇕(r0)}" in out and "10n" in out
+    code, out, _ = cli("show", "March C-", "--ascii")
+    assert "{any(w0); up(r0,w1); up(r1,w0); down(r0,w1); down(r1,w0); any(r0)}" in out
+
+
+def test_show_notation_argument(cli):
+    code, out, _ = cli("show", "{any(w0); up(r0,w1); down(r1,w0,r0)}")
+    assert code == 0 and "{⇕(w0); ⇑(r0,w1); ⇓(r1,w0,r0)}" in out and "6n" in out
+
+
+def test_syntax_error_in_a_file(cli, tmp_path):
+    f = tmp_path / "mine.march"
+    f.write_text('test "ours"\n  length 4n\n  {⇕(w0); ⇑(r0,w1) ⇓(r1)}\n', encoding="utf-8")
+    code, out, err = cli("check", str(f))
+    assert code == 2
+    assert f"{f}:3:20: error:" in err
+    assert "    {⇕(w0); ⇑(r0,w1) ⇓(r1)}" in err
+    assert err.splitlines()[2].index("^") == 4 + 19   # column 20, under the ⇓
+    assert "Traceback" not in err
+
+
+def test_inconsistent_test_is_rejected(cli):
+    code, out, err = cli("grade", "{⇕(w0); ⇑(r1)}", "--words", "8")
+    assert code == 2
+    assert "<argument>:1:11: error:" in err and "element 2" in err and "operation 1" in err
+    assert "Traceback" not in err
+
+
+def test_check_reports_warnings_and_passes(cli, tmp_path):
+    f = tmp_path / "w.march"
+    f.write_text("{⇑(r0); ⇕(w1); ⇕(r1)}\n", encoding="utf-8")
+    code, out, err = cli("check", str(f))
+    assert code == 0 and "warning:" in err and "1 warning" in out
+    code, out, err = cli("check", "--strict", str(f))
+    assert code == 2
+
+
+def test_check_the_library_file(cli):
+    code, out, err = cli("check", str(ROOT / "patterns" / "published.march"))
+    assert code == 0, err
+    assert "0 errors" in out
+
+
+def test_unknown_test_name(cli):
+    code, out, err = cli("show", "March Q-")
+    assert code == 2 and "not a test in the library" in err and "Did you mean" in err
+
+
+@pytest.mark.parametrize("argv,needle", [
+    (["--words", "10", "--mux", "4"], "does not divide"),
+    (["--words", "1"], "at least 2 words"),
+    (["--order", "sideways"], "unknown address order"),
+    (["--backgrounds", "plaid"], "unknown background"),
+    (["--clock", "fast"], "not a frequency"),
+    (["--faults", "nonsense"], "unknown fault selection"),
+    (["--pairs", "some"], "unknown pair scope"),
+    (["--retention", "forever"], "not a duration"),
+    (["--words", "12", "--scramble-xor", "3"], "power-of-two"),
+])
+def test_bad_memory_and_fault_options(cli, argv, needle):
+    code, out, err = cli("grade", "MATS+", *argv)
+    assert code == 2, (code, err)
+    assert needle in err and "Traceback" not in err
+
+
+def test_memory_file_errors_are_positioned(cli, tmp_path):
+    f = tmp_path / "mem.toml"
+    f.write_text('[memory]\nwords = 64\ncolour = "blue"\n', encoding="utf-8")
+    code, out, err = cli("grade", "MATS+", "--memory", str(f))
+    assert code == 2 and f"{f}:3:1: error: unknown key 'colour'" in err and "^" in err
+
+
+def test_grade_terminal_view(cli):
+    code, out, err = cli("grade", "March C-", "--words", "32", "--faults", "static,classic", "--pairs", "all")
+    assert code == 0
+    assert "WDF" in out and "0.00%" in out and "non-transition" in out
+    assert "320 operations" in out and "320 cycles" in out
+    assert "total" in out
+
+
+def test_grade_usage_error(cli):
+    code, out, err = cli("grade")
+    assert code == 2 and "usage:" in err
+
+
+def test_demo_runs(cli):
+    code, out, err = cli("demo")
+    assert code == 0 and "March SS" in out and "kestrel_l1_sram" in out
+
+
+def test_console_script_runs_without_traceback_on_bad_input(tmp_path):
+    # the installed entry point, as a new user runs it
+    f = tmp_path / "bad.march"
+    f.write_bytes(b"{\xff\xfe}")
+    p = subprocess.run([sys.executable, "-m", "marchkit", "check", str(f)], capture_output=True, text=True)
+    assert p.returncode == 2 and "Traceback" not in p.stderr and "UTF-8" in p.stderr
+
+
+@pytest.mark.slow
+def test_non_editable_install_works_outside_the_repository(tmp_path):
+    """Build the wheel, install it in a fresh venv (dependencies from this environment),
+    and run it from another directory: grammars/ and patterns/ must come along."""
+    wheel_dir = tmp_path / "wheels"
+    subprocess.run([sys.executable, "-m", "pip", "wheel", "--no-deps", "--no-build-isolation", "-q",
+                    "-w", str(wheel_dir), str(ROOT)], check=True, capture_output=True)
+    wheel = next(wheel_dir.glob("marchkit-*.whl"))
+    venv = tmp_path / "venv"
+    subprocess.run([sys.executable, "-m", "venv", "--system-site-packages", str(venv)], check=True)
+    py = venv / "bin" / "python"
+    subprocess.run([str(py), "-m", "pip", "install", "--no-deps", "-q", str(wheel)], check=True, capture_output=True)
+    elsewhere = tmp_path / "elsewhere"
+    elsewhere.mkdir()
+    env = {k: v for k, v in os.environ.items() if k != "PYTHONPATH"}
+    probe = subprocess.run([str(py), "-c", "import marchkit, sys; print(marchkit.__file__)"],
+                           cwd=elsewhere, capture_output=True, text=True, env=env, check=True)
+    assert str(venv) in probe.stdout, probe.stdout   # the installed copy, not the checkout
+    exe = venv / "bin" / "marchkit"
+    p = subprocess.run([str(exe), "library"], cwd=elsewhere, capture_output=True, text=True, env=env)
+    assert p.returncode == 0 and "March SS" in p.stdout, p.stderr
+    p = subprocess.run([str(exe), "grade", "March SS", "--words", "16", "--pairs", "all", "--json"],
+                       cwd=elsewhere, capture_output=True, text=True, env=env)
+    assert p.returncode == 0 and json.loads(p.stdout)["total"]["coverage"] == 1.0
+    p = subprocess.run([str(exe), "show", "{⇕(w0); ⇑(r0"], cwd=elsewhere, capture_output=True, text=True, env=env)
+    assert p.returncode == 2 and "<argument>:1:" in p.stderr and "Traceback" not in p.stderr
