@@ -521,23 +521,52 @@ class Engine:
         return results
 
     # ---- everything ----------------------------------------------------------------
-    def grade(self, selection, scope, progress=None):
-        results: dict[str, KindResult] = {}
-        fams = {}
+    def grade(self, selection, scope, progress=None, workers=None):
+        """Counts for every kind of ``selection``.
+
+        Families (primitives, AF, SOF, DRF) are independent pure computations over their
+        kinds; on large arrays they run on two threads (numpy releases the GIL in the heavy
+        array work), otherwise one after the other.
+        """
+        fams: dict[str, list] = {}
         for k in selection.kinds:
             fams.setdefault(k.family, []).append(k)
         steps = [f for f in ("rules", "af", "sof", "drf") if f in fams]
-        for i, fam in enumerate(steps):
-            if progress:
-                progress(fam, i, len(steps))
+
+        def work(fam):
+            out: dict[str, KindResult] = {}
             if fam == "rules":
-                self.grade_rules(fams[fam], scope, results)
+                self.grade_rules(fams[fam], scope, out)
             elif fam == "af":
-                self.grade_af(fams[fam], scope, results)
+                self.grade_af(fams[fam], scope, out)
             elif fam == "sof":
-                self.grade_sof(fams[fam], results)
+                self.grade_sof(fams[fam], out)
             else:
-                self.grade_drf(fams[fam], results)
+                self.grade_drf(fams[fam], out)
+            return out
+
+        workers = workers or 1
+        results: dict[str, KindResult] = {}
+        done = 0
+        if progress:
+            progress(steps[0] if steps else "done", 0, len(steps))
+        if workers > 1:
+            from concurrent.futures import ThreadPoolExecutor, as_completed
+
+            self.prep.word_keys()   # build shared lazy state before the threads start
+            with ThreadPoolExecutor(max_workers=workers) as pool:
+                futs = {pool.submit(work, f): f for f in steps}
+                for fut in as_completed(futs):
+                    results.update(fut.result())
+                    done += 1
+                    if progress:
+                        progress(futs[fut], done, len(steps))
+        else:
+            for fam in steps:
+                if progress:
+                    progress(fam, done, len(steps))
+                results.update(work(fam))
+                done += 1
         if progress:
             progress("done", len(steps), len(steps))
         return [results[k.text] for k in selection.kinds]
