@@ -92,7 +92,7 @@ def select_faults(spec: str = "static", retention=DEFAULT_RETENTION) -> FaultSel
                 else:
                     raise FaultSpecError(
                         f"unknown fault selection {part!r}; use static, classic, retention, all, "
-                        "a class (" + ", ".join(STATIC_CLASSES + CLASSIC_CLASSES[:2] + ("SOF", "AF", "CFin", "CFid", "DRF")) +
+                        "a class (" + ", ".join(STATIC_CLASSES + ("SAF", "SOF", "AF", "CFin", "CFid", "DRF")) +
                         "), a kind such as SA0 or AF:alias, or a primitive such as <0w1/0/->"
                     )
         for k in got:
@@ -137,7 +137,9 @@ def parse_pairs(spec: str = "neighbours") -> PairScope:
                 seed = int(bits[2]) if len(bits) > 2 else 1
             except (ValueError, IndexError):
                 raise FaultSpecError(f"pair scope {raw!r}: write sample:K or sample:K:SEED") from None
-            if k < 1 or len(bits) > 3:
+            if len(bits) > 3:
+                raise FaultSpecError(f"pair scope {raw!r}: write sample:K or sample:K:SEED")
+            if k < 1:
                 raise FaultSpecError(f"pair scope {raw!r}: K must be a positive whole number")
             parts.append(("sample", k, seed))
         else:

@@ -80,6 +80,10 @@ def parse_rule(text: str) -> Rule:
         raise FaultSpecError(f"{text!r}: R is a value exactly when the victim is read, '-' otherwise")
     if agg is not None and agg.op is not None and vic.op is not None:
         raise FaultSpecError(f"{text!r}: a static primitive sensitises with at most one operation")
+    # a primitive describes a deviation: F or R must differ from what a fault-free cell gives
+    good_f = vic.val if vic.op == "w" else vic.pre
+    if int(f) == good_f and (rr is None or rr == vic.pre):
+        raise FaultSpecError(f"{text!r}: F and R are what a fault-free cell gives; that is no fault")
     return Rule(vic, int(f), rr, agg)
 
 

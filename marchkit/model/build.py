@@ -62,6 +62,31 @@ def _key_pos(text: str, key: str, filename: str) -> SourcePos | None:
     return None
 
 
+# which file key a validation message is about: the first fragment found in the message wins
+_MESSAGE_KEYS = (
+    ("reads and writes", ("read_cycles", "write_cycles")),
+    ("column mux", ("mux",)),
+    ("XOR", ("scramble_xor",)),
+    ("scrambl", ("scramble_bits",)),
+    ("bits per word", ("bits",)),
+    ("clock", ("clock",)),
+    ("stride", ("order",)),
+    ("address order", ("order",)),
+    ("background", ("backgrounds",)),
+    ("neighbours", ("neighbours",)),
+    ("words", ("words",)),
+)
+
+
+def _message_key(message: str, file_keys, values) -> str | None:
+    for fragment, keys in _MESSAGE_KEYS:
+        if fragment in message:
+            # of two candidates (read/write cycles) prefer the one holding a bad value
+            keys = sorted(keys, key=lambda k: not (isinstance(values.get(k), int) and values[k] < 1))
+            return next((k for k in keys if k in file_keys), None)
+    return None
+
+
 def load_memory_file(path: str | Path, **overrides) -> Memory:
     """Read a memory from a TOML file (a ``[memory]`` table or top-level keys).
 
@@ -94,6 +119,14 @@ def load_memory_file(path: str | Path, **overrides) -> Memory:
         want = TOML_KEYS[key]
         if not isinstance(value, want) or isinstance(value, bool):
             raise MemoryFileError(f"{key} has the wrong type ({type(value).__name__})", _key_pos(text, key, str(p)), text)
+        if isinstance(value, list):
+            item = int if key == "scramble_bits" else str
+            bad = [x for x in value if not isinstance(x, item) or isinstance(x, bool)]
+            if bad:
+                raise MemoryFileError(
+                    f"{key} must list {'whole numbers' if item is int else 'strings'}, not {bad[0]!r}",
+                    _key_pos(text, key, str(p)), text,
+                )
         kwargs[key] = value
     if "words" not in kwargs and overrides.get("words") is None:
         raise MemoryFileError("a memory file needs 'words'", SourcePos(1, 1, str(p)), text)
@@ -104,7 +137,7 @@ def load_memory_file(path: str | Path, **overrides) -> Memory:
     try:
         return make_memory(**kwargs)
     except ModelError as e:
-        key = next((k for k in kwargs if k in e.message), None)
+        key = _message_key(e.message, [k for k in table if overrides.get(k) is None], kwargs)
         pos = _key_pos(text, key, str(p)) if key else None
         if pos:
             raise MemoryFileError(e.message, pos, text) from None
