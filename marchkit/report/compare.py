@@ -143,12 +143,13 @@ def pareto_flags(points: Sequence[tuple[int, object]]) -> list[bool]:
 # ---- rows from grade results ----------------------------------------------------------
 
 def memory_label(mem) -> str:
-    """A short description of a memory: ``kestrel_l1_sram 1024×16 mux 4 @ 200 MHz``."""
-    name = getattr(mem, "name", "") or "memory"
-    text = f"{name} {mem.words}×{mem.bits}"
+    """A short description of a memory: ``kestrel_l1_sram (1024×16, mux 4, 200 MHz)``; an
+    unnamed one is ``memory (64×1, 100 MHz)``."""
+    parts = [f"{mem.words}×{mem.bits}"]
     if getattr(mem, "mux", 1) != 1:
-        text += f" mux {mem.mux}"
-    return text + f" @ {format_frequency(mem.clock_hz)}"
+        parts.append(f"mux {mem.mux}")
+    parts.append(format_frequency(mem.clock_hz))
+    return f"{getattr(mem, 'name', '') or 'memory'} ({', '.join(parts)})"
 
 
 def format_frequency(hz) -> str:
@@ -157,6 +158,25 @@ def format_frequency(hz) -> str:
         if hz >= scale:
             return f"{hz / scale:.4g} {unit}"
     return f"{hz:.4g} Hz"
+
+
+def percent_text(cov: float, digits: int = 1, detected: int | None = None,
+                 instances: int | None = None) -> str:
+    """A coverage (0..1) as a percentage text, rounded to ``digits`` decimals, except that a
+    partial coverage never shows as ``100`` nor as ``0`` (it is held at the nearest value
+    short of them).  Full and zero coverage print without decimals."""
+    if detected is not None and instances is not None:
+        full, none = detected >= instances, detected == 0
+    else:
+        full, none = cov >= 1.0, cov <= 0.0
+    if full:
+        return "100"
+    if none:
+        return "0"
+    step = 10.0 ** -digits
+    v = round(100.0 * cov, digits)
+    v = min(max(v, step), 100.0 - step)
+    return f"{v:.{digits}f}"
 
 
 def format_time(seconds: float) -> str:
@@ -238,8 +258,9 @@ def compare_tests(tests: Sequence, mem, faults: str = "static", pairs: str = "ne
                   labels: Sequence[str] | None = None, sort: str = "given") -> Comparison:
     """Grade every test on ``mem`` and compare them.
 
-    ``progress(i, n, label)`` is called before test ``i`` (0-based) of ``n`` and once more
-    with ``i == n`` at the end.
+    ``progress(done, n, label)`` reports how far the run is: ``done`` goes from 0 to ``n``
+    (the number of tests; fractions while a test is being graded), ``label`` names the test
+    being graded ("" at the end).
     """
     from ..grade import grade
 
@@ -250,9 +271,13 @@ def compare_tests(tests: Sequence, mem, faults: str = "static", pairs: str = "ne
     kw = {} if retention is None else {"retention": tuple(retention)}
     results = []
     for i, (t, label) in enumerate(zip(tests, labels)):
+        step = None
         if progress:
             progress(i, len(tests), label)
-        results.append(grade(t, mem, faults=faults, pairs=pairs, engine=engine, **kw))
+
+            def step(what, done, total, i=i, label=label):
+                progress(i + (min(done, total) / total if total else 0.0), len(tests), label)
+        results.append(grade(t, mem, faults=faults, pairs=pairs, engine=engine, progress=step, **kw))
     if progress:
         progress(len(tests), len(tests), "")
     return compare_results(results, labels).sorted(sort)

@@ -1,0 +1,213 @@
+"""`marchkit compare TEST…`: several tests on one memory and one fault list — cost,
+coverage, detected faults per 1 000 cycles and the Pareto front."""
+
+from __future__ import annotations
+
+import json
+import sys
+
+
+def register(sub):
+    from ..report.compare import DEFAULT_SORT, SORT_KEYS
+    from .common import add_fault_options, add_memory_options
+
+    p = sub.add_parser(
+        "compare", help="compare march tests on coverage per cycle",
+        description="Grade every TEST (library names, files of tests, or notations starting with '{') on "
+        "one memory against one fault list, and show what each costs, what it catches, how many faults "
+        "it detects per 1 000 clock cycles and which tests lie on the Pareto front (no other test is "
+        "as fast and as good, and better in one of the two).",
+    )
+    p.add_argument("tests", nargs="*", metavar="TEST")
+    p.add_argument("--library", action="store_true", help="also compare every published test in the library")
+    add_memory_options(p)
+    add_fault_options(p)
+    g = p.add_argument_group("output")
+    g.add_argument("--sort", default=DEFAULT_SORT, metavar="KEY",
+                   help="row order: " + "; ".join(f"{k}: {v}" for k, v in SORT_KEYS.items())
+                   + f"; or a class name (its coverage, highest first). Default {DEFAULT_SORT}")
+    g.add_argument("--json", action="store_true", help="print the comparison as JSON")
+    g.add_argument("--csv", metavar="FILE", help="also write the comparison as CSV")
+    g.add_argument("--plot", metavar="FILE", help="also draw coverage against test time and coverage per class (.png or .svg)")
+    g.add_argument("--force", action="store_true", help="replace existing output files")
+    p.set_defaults(func=run)
+
+
+def collect_tests(specs, with_library: bool):
+    """The tests named on the command line (a file may hold several), then the library's,
+    each once."""
+    from ..notation import ensure_consistent, library, resolve_tests
+
+    tests = []
+    for spec in specs:
+        tests.extend(ensure_consistent(t) for t in resolve_tests(spec))
+    if with_library:
+        tests.extend(library())
+    out, seen = [], set()
+    for t in tests:
+        key = (t.name, t.items)
+        if key in seen:
+            continue
+        seen.add(key)
+        out.append(t)
+    return out
+
+
+def _check_output(path, force: bool, plot: bool = False) -> None:
+    from pathlib import Path
+
+    from ..errors import OutputError
+
+    if plot:
+        from ..report.style import plot_format
+
+        plot_format(path)
+    p = Path(path)
+    if p.exists() and not force:
+        raise OutputError(f"{p} exists; use --force to replace it")
+    d = p.parent if str(p.parent) else Path(".")
+    if not d.is_dir():
+        raise OutputError(f"cannot write {p}: no directory {d}")
+
+
+def run(args) -> int:
+    from ..errors import InputError
+    from ..faults import select_faults
+    from ..report import check_sort_key, compare_tests
+    from .common import atomic_write, console, memory_from_args, retention_from_args
+
+    if not args.tests and not args.library:
+        raise InputError("give the tests to compare (library names, files or notations), or --library")
+    retention = retention_from_args(args)
+    # everything that can be wrong with the command is found before any grading
+    tests = collect_tests(args.tests, args.library)
+    mem = memory_from_args(args)
+    selection = select_faults(args.faults, retention)
+    sort = check_sort_key(args.sort, selection.classes)
+    for path, is_plot in ((args.csv, False), (args.plot, True)):
+        if path:
+            _check_output(path, args.force, plot=is_plot)
+
+    show_progress = sys.stderr.isatty() and not args.json
+    if show_progress:
+        from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
+
+        prog = Progress(TextColumn("{task.description}"), BarColumn(), TextColumn("{task.fields[count]}"),
+                        TimeElapsedColumn(), console=console(stderr=True), transient=True)
+        task = prog.add_task("grading", total=len(tests), count="")
+
+        def progress(done, total, label):
+            prog.update(task, completed=done, description=f"grading {label}" if label else "done",
+                        count=f"{min(int(done) + 1, total)}/{total}")
+
+        with prog:
+            cmp = compare_tests(tests, mem, args.faults, args.pairs, retention, args.engine,
+                                progress=progress, sort=sort)
+    else:
+        cmp = compare_tests(tests, mem, args.faults, args.pairs, retention, args.engine, sort=sort)
+
+    written = []
+    if args.csv:
+        atomic_write(args.csv, cmp.to_csv(), force=args.force)
+        written.append(args.csv)
+    if args.plot:
+        from ..report import write_comparison_plot
+
+        write_comparison_plot(cmp, args.plot, force=args.force)
+        written.append(args.plot)
+
+    if args.json:
+        print(json.dumps(cmp.to_json(), indent=2, ensure_ascii=False))
+        for w in written:
+            console(stderr=True).print(f"wrote {w}")
+        return 0
+    con = console()
+    show_comparison(cmp, con)
+    for w in written:
+        con.print(f"wrote {w}")
+    return 0
+
+
+def _cov_text(cov: float | None, detected: int | None = None, instances: int | None = None) -> str:
+    """Coverage in % for a table cell; a partial coverage never shows as 100 or 0."""
+    from ..report.compare import percent_text
+
+    if cov is None:
+        return "[dim]n/a[/dim]"
+    text = percent_text(cov, 1, detected, instances)
+    return "[bold]0[/bold]" if text == "0" else text
+
+
+def _rate(v: float) -> str:
+    return f"{v:,.0f}" if abs(v) >= 100 else f"{v:.3g}"
+
+
+def show_comparison(cmp, con) -> None:
+    from rich.table import Table
+
+    from ..report.compare import format_time
+
+    rows = list(cmp.rows)
+    n_inst = rows[0].instances if rows else 0
+    con.print(f"[bold]{len(rows)} test{'s' if len(rows) != 1 else ''} on {cmp.memory_label}[/bold]")
+    con.print(f"faults  {cmp.faults_spec} ({n_inst:,} instances)   pairs {cmp.pairs_spec}")
+    # on a narrow console the operation and detected counts (the least telling columns:
+    # cycles and the rate carry them) are left out and the headers shortened
+    narrow = con.width < 110
+    t = Table(show_edge=False, pad_edge=False, title="cost and coverage", title_justify="left",
+              title_style="bold")
+    t.add_column("test", no_wrap=True)
+    t.add_column("length", justify="right", no_wrap=True)
+    cols = ["cycles", "time", "cov %", "/1k cycles"] if narrow else \
+        ["ops", "cycles", "time", "detected", "coverage %", "per 1k cycles"]
+    for col in cols:
+        t.add_column(col, justify="right", no_wrap=True)
+    t.add_column("front", justify="center", no_wrap=True)
+    for r in rows:
+        cov = _cov_text(r.coverage, r.detected, r.instances)
+        cells = [f"{r.cycles:,}", format_time(r.seconds), cov, _rate(r.per_kcycle)] if narrow else \
+            [f"{r.ops:,}", f"{r.cycles:,}", format_time(r.seconds), f"{r.detected:,}", cov, _rate(r.per_kcycle)]
+        t.add_row(f"[bold]{r.label}[/bold]" if r.pareto else r.label, r.length, *cells,
+                  "[bold]yes[/bold]" if r.pareto else "[dim]no[/dim]")
+    con.print(t)
+    if narrow:
+        con.print("[dim]cov % = total coverage; /1k cycles = faults detected per 1 000 clock cycles[/dim]")
+
+    # coverage per class: as many class columns as the console is wide, in several tables
+    # when there are more classes than fit
+    label_w = max([len("test")] + [len(r.label) for r in rows]) + 3
+    chunks, cur, width = [], [], label_w
+    for cls in cmp.classes:
+        w = max(len(cls), 4) + 3
+        if cur and width + w > max(con.width, 40):
+            chunks.append(cur)
+            cur, width = [], label_w
+        cur.append(cls)
+        width += w
+    if cur:
+        chunks.append(cur)
+    for n, part in enumerate(chunks):
+        title = "coverage per class (%)" + (f", part {n + 1} of {len(chunks)}" if len(chunks) > 1 else "")
+        con.print(f"[bold]{title}[/bold]")
+        c = Table(show_edge=False, pad_edge=False)
+        c.add_column("test", no_wrap=True)
+        for cls in part:
+            c.add_column(cls, justify="right", no_wrap=True, min_width=4)
+        for r in rows:
+            c.add_row(r.label, *(_cov_text(r.classes.get(cls)) for cls in part))
+        con.print(c)
+
+    front = cmp.front
+    if len(front) > 1:
+        s = Table(show_edge=False, pad_edge=False, title="what each step along the front buys",
+                  title_justify="left", title_style="bold")
+        for col in ("from", "to"):
+            s.add_column(col, no_wrap=True)
+        for col in ("extra cycles", "extra detected", "per 1k extra cycles"):
+            s.add_column(col, justify="right", no_wrap=True)
+        for a, b in zip(front, front[1:]):
+            dc, dd = b.cycles - a.cycles, b.detected - a.detected
+            s.add_row(a.label, b.label, f"{dc:+,}", f"{dd:+,}", _rate(1000 * dd / dc) if dc else "—")
+        con.print(s)
+    elif front:
+        con.print(f"Pareto front: {front[0].label} alone")

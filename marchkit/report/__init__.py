@@ -1,0 +1,42 @@
+"""Layer 6: reports — comparing tests on coverage per cycle (rows, Pareto front, CSV and
+JSON), plots of a comparison, and the HTML page of one grade result.
+
+Importing this package does not import matplotlib; the plotting functions do, when called.
+"""
+
+from .compare import (DEFAULT_SORT, SORT_KEYS, Comparison, Row, check_sort_key, compare_results,
+                      compare_tests, dominates, pareto_flags, sort_rows, unique_labels)
+
+
+def comparison_figure(cmp):
+    """The comparison plot as a matplotlib Figure (see :mod:`marchkit.report.plots`)."""
+    from .plots import comparison_figure as f
+
+    return f(cmp)
+
+
+def write_comparison_plot(cmp, path, force: bool = False):
+    from .plots import write_comparison_plot as f
+
+    return f(cmp, path, force=force)
+
+
+def html_report(result) -> str:
+    from .html import html_report as f
+
+    return f(result)
+
+
+def write_html_report(result, path, force: bool = False) -> None:
+    """A self-contained HTML page of a grade result, written atomically (see
+    :mod:`marchkit.report.html`)."""
+    from .html import write_html_report as f
+
+    return f(result, path, force=force)
+
+
+__all__ = [
+    "DEFAULT_SORT", "SORT_KEYS", "Comparison", "Row", "check_sort_key", "compare_results",
+    "compare_tests", "dominates", "pareto_flags", "sort_rows", "unique_labels",
+    "comparison_figure", "write_comparison_plot", "html_report", "write_html_report",
+]
