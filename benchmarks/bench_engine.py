@@ -1,0 +1,215 @@
+"""Benchmark of the fast fault-simulation engine (a script, not a test).
+
+    python benchmarks/bench_engine.py            # everything (a few minutes on 2 cores)
+    python benchmarks/bench_engine.py --quick    # smaller reference sizes, one repeat
+
+For each workload it prints the instances, the wall time of grading (``marchkit.grade.grade``
+with the default engine, in a fresh process so that the peak RSS is the workload's own), the
+instance rate, and the speed-up over the literal reference simulator.  The reference cannot
+finish the big sizes, so it is measured on the *same workload* (test, fault selection, pair
+scope, memory options) at a small size, in the same run; the engine is measured on that small
+size too.  Two ratios are printed, each labelled:
+
+* ``same size``: engine rate / reference rate, both on the small memory;
+* ``big vs small``: engine rate on the big memory / reference rate on the small memory.  The
+  reference's rate falls as the memory grows (each instance costs it O(words)), so this
+  ratio is a lower bound of the true ratio at the big size; nothing is extrapolated.
+
+Then a scaling table over the array size for March SS, static primitives, all pairs, and, if
+the ``grade`` command exists, whole-process timings of the ``marchkit`` console script.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import resource
+import shutil
+import statistics
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parents[1]
+
+WORKLOADS = [
+    dict(name="March SS 4096x1 static, all pairs", test="March SS",
+         mem=dict(words=4096, bits=1), faults="static", pairs="all",
+         small=dict(words=8, bits=1), small_quick=dict(words=4, bits=1),
+         cli=["--words", "4096", "--bits", "1", "--faults", "static", "--pairs", "all"]),
+    dict(name="March SS 65536x16 static,SAF,TF,SOF,AF,DRF, neighbours", test="March SS",
+         mem=dict(words=65536, bits=16), faults="static,SAF,TF,SOF,AF,DRF", pairs="neighbours",
+         small=dict(words=4, bits=4), small_quick=dict(words=2, bits=4),
+         cli=["--words", "65536", "--bits", "16", "--faults", "static,SAF,TF,SOF,AF,DRF",
+              "--pairs", "neighbours"]),
+]
+SCALING_WORDS = (64, 256, 1024, 4096, 16384)
+
+
+# ---------------------------------------------------------------------------------------
+# measurements (each run in a child process: `--child JSON`)
+
+
+def _peak_rss_mb() -> float:
+    return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024   # Linux: KiB
+
+
+def measure_engine(spec: dict) -> dict:
+    from marchkit.grade import grade
+    from marchkit.model import make_memory
+    from marchkit.notation import find_in_library
+
+    test = find_in_library(spec["test"])
+    mem = make_memory(**spec["mem"])
+    times = []
+    res = None
+    for _ in range(spec.get("repeat", 1)):
+        t0 = time.perf_counter()
+        res = grade(test, mem, spec["faults"], spec["pairs"])
+        times.append(time.perf_counter() - t0)
+    return {"instances": res.total.instances, "detected": res.total.detected,
+            "times": times, "rss_mb": _peak_rss_mb()}
+
+
+def measure_reference(spec: dict) -> dict:
+    """Reference simulator on the whole workload: every kind, every instance."""
+    from marchkit.engine.reference import reference_verdicts
+    from marchkit.faults import DEFAULT_RETENTION, enumerate_instances, parse_pairs, select_faults
+    from marchkit.model import make_memory
+    from marchkit.notation import find_in_library
+
+    test = find_in_library(spec["test"])
+    mem = make_memory(**spec["mem"])
+    sel = select_faults(spec["faults"], DEFAULT_RETENTION)
+    scope = parse_pairs(spec["pairs"])
+    t0 = time.perf_counter()
+    insts = [i for k in sel.kinds for i in enumerate_instances(k, mem, scope)]
+    verdicts = reference_verdicts(test, mem, insts)
+    dt = time.perf_counter() - t0
+    return {"instances": len(insts), "detected": sum(d for d, _ in verdicts), "times": [dt],
+            "rss_mb": _peak_rss_mb()}
+
+
+def in_child(kind: str, spec: dict) -> dict:
+    out = subprocess.run(
+        [sys.executable, __file__, "--child", json.dumps({"kind": kind, "spec": spec})],
+        capture_output=True, text=True, cwd=ROOT,
+    )
+    if out.returncode:
+        raise SystemExit(f"child failed ({kind} {spec}):\n{out.stderr}")
+    return json.loads(out.stdout.strip().splitlines()[-1])
+
+
+def run_cli(args: list[str]) -> dict | None:
+    exe = shutil.which("marchkit")
+    if exe is None or not (ROOT / "marchkit" / "cli" / "cmd_grade.py").exists():
+        return None
+    t0 = time.perf_counter()
+    out = subprocess.run([exe, "grade", *args, "--json"], capture_output=True, text=True)
+    dt = time.perf_counter() - t0
+    if out.returncode:
+        return {"error": f"exit {out.returncode}: {out.stderr.strip()[:300]}", "seconds": dt}
+    ru = resource.getrusage(resource.RUSAGE_CHILDREN)
+    try:
+        total = json.loads(out.stdout)["total"]
+    except (ValueError, KeyError):
+        return {"error": "output is not the grade JSON", "seconds": dt}
+    return {"seconds": dt, "instances": total["instances"], "detected": total["detected"],
+            "children_peak_rss_mb": ru.ru_maxrss / 1024}
+
+
+# ---------------------------------------------------------------------------------------
+# report
+
+
+def fmt_n(n: float) -> str:
+    return f"{n:,.0f}"
+
+
+def fmt_rate(r: float) -> str:
+    return f"{r:.3g}/s"
+
+
+def best(times):
+    return min(times)
+
+
+def main(argv=None) -> int:
+    ap = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
+    ap.add_argument("--quick", action="store_true", help="smaller reference sizes, one repeat")
+    ap.add_argument("--repeat", type=int, default=3, help="engine runs per workload (best and median are printed)")
+    ap.add_argument("--no-cli", action="store_true", help="skip the whole-process CLI timings")
+    ap.add_argument("--child", help=argparse.SUPPRESS)
+    args = ap.parse_args(argv)
+    if args.child:
+        job = json.loads(args.child)
+        fn = measure_engine if job["kind"] == "engine" else measure_reference
+        print(json.dumps(fn(job["spec"])))
+        return 0
+
+    repeat = 1 if args.quick else args.repeat
+    import numpy
+
+    import marchkit
+
+    print(f"marchkit {marchkit.__version__}, Python {sys.version.split()[0]}, numpy {numpy.__version__}, "
+          f"{os.cpu_count()} CPUs, load average {', '.join(f'{x:.2f}' for x in os.getloadavg())}")
+    print("times are wall-clock seconds of marchkit.grade.grade() in a fresh process "
+          f"(engine: best and median of {repeat}; reference: one run)\n")
+
+    for w in WORKLOADS:
+        small = w["small_quick" if args.quick else "small"]
+        base = dict(test=w["test"], faults=w["faults"], pairs=w["pairs"])
+        big = in_child("engine", dict(base, mem=w["mem"], repeat=repeat))
+        eng_small = in_child("engine", dict(base, mem=small, repeat=max(repeat, 3)))
+        ref_small = in_child("reference", dict(base, mem=small))
+        agree = (eng_small["instances"], eng_small["detected"]) == (ref_small["instances"], ref_small["detected"])
+        t_big = best(big["times"])
+        r_big = big["instances"] / t_big
+        r_es = eng_small["instances"] / best(eng_small["times"])
+        r_ref = ref_small["instances"] / ref_small["times"][0]
+        mem_txt = f"{w['mem']['words']}x{w['mem']['bits']}"
+        sm_txt = f"{small['words']}x{small['bits']}"
+        print(f"== {w['name']}")
+        print(f"   engine    {mem_txt:>9}: {fmt_n(big['instances']):>15} instances, "
+              f"best {t_big:.3f} s (median {statistics.median(big['times']):.3f} s), "
+              f"{fmt_rate(r_big)}, detected {fmt_n(big['detected'])}, peak RSS {big['rss_mb']:.0f} MB")
+        print(f"   engine    {sm_txt:>9}: {fmt_n(eng_small['instances']):>15} instances, "
+              f"best {best(eng_small['times']):.4f} s, {fmt_rate(r_es)}")
+        print(f"   reference {sm_txt:>9}: {fmt_n(ref_small['instances']):>15} instances, "
+              f"{ref_small['times'][0]:.3f} s, {fmt_rate(r_ref)}; "
+              f"totals agree with the engine: {'yes' if agree else 'NO'}")
+        print(f"   speed-up, same size ({sm_txt}, engine rate / reference rate): {r_es / r_ref:,.0f}x")
+        print(f"   speed-up, big vs small (engine rate at {mem_txt} / reference rate at {sm_txt}): "
+              f"{r_big / r_ref:,.0f}x")
+        if not args.no_cli:
+            cli = run_cli(w["cli"])
+            if cli is None:
+                print("   CLI: marchkit/cli/cmd_grade.py or the marchkit script is missing; not timed")
+            elif "error" in cli:
+                print(f"   CLI: marchkit grade ... --json failed after {cli['seconds']:.2f} s: {cli['error']}")
+            else:
+                same = "yes" if cli["instances"] == big["instances"] else "NO"
+                print(f"   CLI whole process (marchkit grade {' '.join(w['cli'])} --json): "
+                      f"{cli['seconds']:.2f} s, {fmt_n(cli['instances'])} instances (same count: {same})")
+        print()
+
+    print("== scaling: March SS, static primitives, all ordered pairs, bits 1 (engine)")
+    print(f"   {'words':>6} {'instances':>16} {'best s':>8} {'median s':>9} {'instances/s':>12} {'time / time@64':>15}")
+    t64 = None
+    for n in SCALING_WORDS:
+        r = in_child("engine", dict(test="March SS", faults="static", pairs="all",
+                                    mem=dict(words=n, bits=1), repeat=repeat))
+        t = best(r["times"])
+        t64 = t64 or t
+        want = 12 * n + 36 * n * (n - 1)          # 12 one-cell + 36 two-cell primitives
+        flag = "" if r["instances"] == want else f"  (expected {fmt_n(want)}!)"
+        print(f"   {n:>6} {fmt_n(r['instances']):>16} {t:>8.3f} {statistics.median(r['times']):>9.3f} "
+              f"{r['instances'] / t:>12.3g} {t / t64:>15.2f}{flag}")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,506 @@
+"""The fast engine against the literal reference simulator, instance by instance.
+
+The reference simulator (``marchkit.engine.reference`` on the semantics of
+``marchkit.engine.core``) defines what a verdict is; the fast engine must give, for every
+fault instance, the same (detected, first detecting operation) pair, and its per-kind counts
+must be the counts of those per-instance verdicts.
+
+* ``test_random_*``: hypothesis builds random *consistent* march tests (a fault-free memory
+  passes them: every read expects the value last written), random small geometries, address
+  orders, backgrounds, timing, retention times placed around the real gaps of the schedule,
+  fault selections and pair scopes.
+* ``test_library_*``: every published test of the library on small memories, all faults, all
+  pairs.
+* ``test_pair_counts_*``: the closed-form all-pairs counting path against explicit
+  enumeration, and the all-pairs grading path against the explicit-pairs one.
+* ``test_drf_*``: retention timing against a hand calculation of the gaps.
+
+Cost: the reference takes about one microsecond per (instance × operation × initial value ×
+⇕ scenario); every example is held to a fixed budget of those steps so the file stays well
+inside CI limits.  Set ``MARCHKIT_DIFF_EXAMPLES`` for a longer hunt.
+"""
+
+from __future__ import annotations
+
+import os
+from decimal import Decimal
+from fractions import Fraction
+
+import numpy as np
+import pytest
+from hypothesis import HealthCheck, event, given, note, settings
+from hypothesis import strategies as st
+
+from marchkit.engine.fast import Engine, Prepared, _pair_counts_all, _pair_counts_explicit
+from marchkit.engine.reference import Detection, reference_verdicts
+from marchkit.faults import (FaultSelection, enumerate_instances, instance_count, parse_pairs,
+                             select_faults)
+from marchkit.model import (address_order, background_stack, make_memory, ranks, schedule,
+                            seconds_to_cycles)
+from marchkit.notation import Delay, Element, MarchTest, Op, check_test, find_in_library, library
+from marchkit.notation.printer import format_notation
+
+EXAMPLES = int(os.environ.get("MARCHKIT_DIFF_EXAMPLES", "120"))
+STEP_BUDGET = 250_000          # reference steps per hypothesis example
+
+
+# ---------------------------------------------------------------------------------------
+# helpers
+
+
+def n_inits(kind) -> int:
+    """Initial-value scenarios the reference tries for one instance of ``kind``."""
+    if kind.family == "rules":
+        return 2 ** kind.arity
+    if kind.family == "drf":
+        return 2
+    if kind.family == "af":
+        return 2 if kind.af == "none" else 1
+    return 1
+
+
+def reference_cost(test, mem, kind, scope) -> int:
+    sched = schedule(test, mem)
+    n_any = sum(e.order == "any" for e in test.elements)
+    return instance_count(kind, mem, scope) * max(1, sched.ops) * n_inits(kind) * 2 ** n_any
+
+
+def structure_of(inst, mem, rank) -> str:
+    """How a missed instance's cells sit, in the words the engine reports (computed here
+    from the instance, not by engine code)."""
+    if len(inst.sites) == 1:
+        return "single"
+    if inst.kind.family == "af":
+        a, b = inst.sites
+        return "a first" if rank[a] < rank[b] else "b first"
+    wa, wv = (s // mem.bits for s in inst.sites)
+    if wa == wv:
+        return "same word"
+    return "aggressor first" if rank[wa] < rank[wv] else "victim first"
+
+
+def describe(test, mem) -> str:
+    return (f"test {format_notation(test, ascii=True)}; memory words={mem.words} bits={mem.bits} "
+            f"mux={mem.mux} order={mem.order} backgrounds={','.join(mem.backgrounds)} "
+            f"clock={mem.clock_hz}Hz r/w cycles={mem.read_cycles}/{mem.write_cycles} "
+            f"scramble_bits={mem.scramble_bits} scramble_xor={mem.scramble_xor} "
+            f"neighbours={mem.neighbours}")
+
+
+def assert_agree(test, mem, kinds, scope):
+    """Reference and engine agree on every instance of ``kinds``; the engine's counts are
+    the counts of those verdicts.  Returns (instances, reference verdicts)."""
+    per_kind = [list(enumerate_instances(k, mem, scope)) for k in kinds]
+    insts = [i for group in per_kind for i in group]
+    ref = reference_verdicts(test, mem, insts)
+    fast = Engine(test, mem).instance_verdicts(insts)
+    assert len(ref) == len(fast) == len(insts)
+    bad = [(i, r, f) for i, r, f in zip(insts, ref, fast) if r != f]
+    if bad:
+        inst, r, f = bad[0]
+        pytest.fail(
+            f"{len(bad)} of {len(insts)} instances disagree; first: {inst.text(mem)} "
+            f"reference={r} fast={f}; {describe(test, mem)}"
+        )
+    for det, where in ref:
+        assert det == (where is not None)
+        if where is not None:
+            assert isinstance(where, Detection)
+
+    # counts from Engine.grade, on a fresh engine and on the one that gave the verdicts
+    selection = FaultSelection(tuple(kinds), "test")
+    rank = ranks(address_order(mem))
+    for engine in (Engine(test, mem), None):
+        if engine is None:
+            engine = Engine(test, mem)
+            engine.instance_verdicts(insts)
+        results = engine.grade(selection, scope)
+        assert [r.kind.text for r in results] == [k.text for k in kinds]
+        pos = 0
+        for kind, group, res in zip(kinds, per_kind, results):
+            verdicts = ref[pos:pos + len(group)]
+            pos += len(group)
+            assert res.instances == len(group) == instance_count(kind, mem, scope), kind.text
+            assert res.detected == sum(d for d, _ in verdicts), (kind.text, describe(test, mem))
+            elems = [w.element for d, w in verdicts if d]
+            assert res.complete_by == (max(elems) if elems else None), kind.text
+            missed = {structure_of(i, mem, rank) for i, (d, _) in zip(group, verdicts) if not d}
+            assert res.missed_structures == missed, kind.text
+    return insts, ref
+
+
+# ---------------------------------------------------------------------------------------
+# strategies
+
+ORDERS = ("up", "down", "any")
+REPEATS = (1, 1, 1, 1, 1, 2, 3)
+DELAY_AMOUNTS = (Decimal(0), Decimal(1), Decimal("2.5"), Decimal(10), Decimal(40), Decimal(100))
+DELAY_UNITS = ("ns", "us", "ms")
+
+
+@st.composite
+def march_tests(draw):
+    """A random consistent march test: a fault-free memory passes it."""
+    items = []
+    state = None                     # the fault-free value of every cell, None before a write
+    n_any = 0
+    if draw(st.integers(0, 9)) == 0:  # a pause before the first write (allowed, a warning)
+        items.append(Delay(draw(st.sampled_from(DELAY_AMOUNTS)), draw(st.sampled_from(DELAY_UNITS))))
+    for ei in range(draw(st.integers(2, 6))):
+        order = draw(st.sampled_from(ORDERS))
+        if order == "any":
+            if n_any == 2:            # each ⇕ doubles the reference's work
+                order = draw(st.sampled_from(("up", "down")))
+            else:
+                n_any += 1
+        ops = []
+        for oi in range(draw(st.integers(1, 5))):
+            rep = draw(st.sampled_from(REPEATS))
+            if state is None or draw(st.booleans()):
+                if state is not None and draw(st.integers(0, 2)) == 0:
+                    ops.append(Op("r", state, rep))
+                    continue
+                v = draw(st.integers(0, 1))
+                ops.append(Op("w", v, rep))
+                state = v
+            else:
+                ops.append(Op("r", state, rep))
+        items.append(Element(order, tuple(ops)))
+        if draw(st.integers(0, 3)) == 0:
+            items.append(Delay(draw(st.sampled_from(DELAY_AMOUNTS)), draw(st.sampled_from(DELAY_UNITS))))
+    if state is not None and draw(st.booleans()):   # a final read-out, as most tests end
+        items.append(Element(draw(st.sampled_from(ORDERS[:2])), (Op("r", state),)))
+    test = MarchTest(tuple(items), name="random")
+    assert not [d for d in check_test(test) if d.severity == "error"], format_notation(test)
+    return test
+
+
+def _divisors(n):
+    return [d for d in range(1, n + 1) if n % d == 0]
+
+
+@st.composite
+def memories(draw, max_words=6, max_bits=3):
+    words = draw(st.integers(2, max_words))
+    bits = draw(st.integers(1, max_bits))
+    mux = draw(st.sampled_from(_divisors(words)))
+    orders = ["linear", "gray", "complement", f"random:{draw(st.integers(0, 50))}"]
+    if words > 2:
+        orders.append("stride:1")
+    if words > 4:
+        orders.append("stride:2")
+    if words > 8:
+        orders.append("stride:3")
+    order = draw(st.sampled_from(orders))
+    names = ["solid", "checkerboard", "rows", "columns", "word",
+             f"{draw(st.integers(0, 2 ** bits - 1)):#x}"]
+    bgs = draw(st.lists(st.sampled_from(names), min_size=1, max_size=2, unique=True))
+    kw = {}
+    if words & (words - 1) == 0 and draw(st.booleans()):
+        k = max(1, (words - 1).bit_length())
+        kw["scramble_bits"] = tuple(draw(st.permutations(range(k))))
+        kw["scramble_xor"] = draw(st.integers(0, words - 1))
+    return make_memory(
+        words, bits, mux=mux, order=order, backgrounds=tuple(bgs),
+        clock=draw(st.sampled_from(("1MHz", "10MHz", "33MHz", "100MHz", "250MHz"))),
+        read_cycles=draw(st.integers(1, 3)), write_cycles=draw(st.integers(1, 3)),
+        neighbours=draw(st.sampled_from((4, 8))), **kw,
+    )
+
+
+def access_gaps(test, mem) -> set[int]:
+    """Every gap, in cycles, between two consecutive accesses of one word (and from the start
+    to its first access), with each ⇕ element run as ⇑."""
+    sched = schedule(test, mem)
+    rank = ranks(address_order(mem))
+    gaps = set()
+    for w in range(mem.words):
+        last = 0
+        for seg in sched.segments:
+            if seg.element is None:
+                continue
+            pos = mem.words - 1 - rank[w] if seg.order == "down" else rank[w]
+            for off in seg.op_offsets:
+                t = seg.start + int(pos) * seg.per_address + off
+                gaps.add(t - last)
+                last = t
+    return gaps
+
+
+def retention_times(draw, test, mem):
+    """τ values placed on the real gaps between accesses of this schedule, exactly or one
+    cycle off (so that some retention faults are caught and some are not, and the ``≥ τ``
+    boundary is exercised), plus one longer than the whole test."""
+    sched = schedule(test, mem)
+    marks = sorted((access_gaps(test, mem) | {1, sched.cycles + 1}) - {0})
+    picks = draw(st.lists(st.sampled_from(marks), min_size=1, max_size=3, unique=True))
+    offsets = [draw(st.sampled_from((-1, 0, 0, 1))) for _ in picks]
+    cycles = sorted({max(1, p + o) for p, o in zip(picks, offsets)})
+    taus = [Fraction(c) / mem.clock_hz for c in cycles]
+    for c, t in zip(cycles, taus):
+        assert seconds_to_cycles(t, mem.clock_hz) == c
+    return taus
+
+
+def fault_kinds(draw, taus):
+    """A few kinds from ``select_faults('all')``, drawn family by family so the rare
+    families (stuck-open, decoder, retention) come up as often as the 48 primitives."""
+    pools = {}
+    for k in select_faults("all", retention=taus).kinds:
+        fam = k.family if k.family != "rules" else f"rules{k.arity}"
+        pools.setdefault(fam, []).append(k)
+    fams = draw(st.lists(st.sampled_from(sorted(pools)), min_size=1, max_size=4, unique=True))
+    kinds = []
+    for fam in fams:
+        kinds += draw(st.lists(st.sampled_from(pools[fam]), min_size=1, max_size=3,
+                               unique_by=lambda k: k.text))
+    return kinds
+
+
+def pair_scopes(draw):
+    k = draw(st.integers(1, 24))
+    seed = draw(st.integers(0, 9))
+    return parse_pairs(draw(st.sampled_from(
+        ("all", "neighbours", "word", f"sample:{k}:{seed}", "neighbours,word", f"word,sample:{k}:{seed}")
+    )))
+
+
+def budgeted(test, mem, kinds, scope, budget=STEP_BUDGET):
+    """The drawn kinds, in order, as long as the reference can afford them (at least the
+    cheapest one)."""
+    costs = [reference_cost(test, mem, k, scope) for k in kinds]
+    keep, spent = [], 0
+    for k, c in zip(kinds, costs):
+        if spent + c <= budget:
+            keep.append(k)
+            spent += c
+    if not keep:
+        keep = [kinds[int(np.argmin(costs))]]
+    return keep
+
+
+# ---------------------------------------------------------------------------------------
+# random differential tests
+
+RANDOM_SETTINGS = settings(max_examples=EXAMPLES, deadline=None, print_blob=True,
+                           suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large])
+
+
+@RANDOM_SETTINGS
+@given(st.data())
+def test_random_tests_agree_instance_by_instance(data):
+    test = data.draw(march_tests(), label="test")
+    mem = data.draw(memories(), label="memory")
+    taus = retention_times(data.draw, test, mem)
+    kinds = fault_kinds(data.draw, taus)
+    scope = pair_scopes(data.draw)
+    kinds = budgeted(test, mem, kinds, scope)
+    note(describe(test, mem))
+    note(f"kinds {[k.text for k in kinds]} pairs {scope.spec} taus {[str(t) for t in taus]}")
+    insts, ref = assert_agree(test, mem, kinds, scope)
+    for k in kinds:
+        event(f"family {k.family}")
+    drf = [d for i, (d, _) in zip(insts, ref) if i.kind.family == "drf"]
+    if drf:
+        event("DRF: some caught, some not" if 0 < sum(drf) < len(drf) else "DRF: all alike")
+
+
+@settings(max_examples=max(20, EXAMPLES // 2), deadline=None,
+          suppress_health_check=[HealthCheck.too_slow])
+@given(st.data())
+def test_random_retention_and_stuck_open(data):
+    """The families that depend on time and on the sense amplifier, with more of them per
+    example and on larger arrays (they are cheap for the reference: one cell, few initial
+    values), so that a cell can sit far from both ends of the address order."""
+    test = data.draw(march_tests(), label="test")
+    mem = data.draw(memories(max_words=12, max_bits=4), label="memory")
+    taus = retention_times(data.draw, test, mem)
+    kinds = [k for k in select_faults("SOF,DRF,AF:none", retention=taus).kinds]
+    scope = parse_pairs("neighbours")
+    kinds = budgeted(test, mem, kinds, scope, budget=2 * STEP_BUDGET)
+    note(describe(test, mem))
+    note(f"kinds {[k.text for k in kinds]} taus {[str(t) for t in taus]}")
+    insts, ref = assert_agree(test, mem, kinds, scope)
+    drf = [d for i, (d, _) in zip(insts, ref) if i.kind.family == "drf"]
+    if drf:
+        event("DRF: some caught, some not" if 0 < sum(drf) < len(drf) else "DRF: all alike")
+
+
+# ---------------------------------------------------------------------------------------
+# the published library on small memories
+
+# τ for the library runs at 100 MHz: 3 and 10 cycles (caught or not by the gaps between
+# visits of a 4-word array), 50 ms (caught only across the 100 ms pauses of the retention
+# tests) and 150 ms (longer than any pause plus the visits around it: never caught).
+LIB_RETENTION = (Fraction(3, 10**8), Fraction(1, 10**7), Fraction(50, 1000), Fraction(150, 1000))
+LIB_KINDS = select_faults("all", retention=LIB_RETENTION).kinds
+LIB_NAMES = [t.name for t in library()]
+ALL_PAIRS = parse_pairs("all")
+
+
+def _rotating_subset(kinds, i, parts):
+    """Every one-cell kind, and one ``parts``-th of the two-cell kinds (rotating with ``i``,
+    so that over the library every two-cell kind is run)."""
+    two = [k for k in kinds if k.arity == 2]
+    keep = {k.text for j, k in enumerate(two) if j % parts == i % parts}
+    return [k for k in kinds if k.arity == 1 or k.text in keep]
+
+
+def test_library_has_23_tests():
+    assert len(LIB_NAMES) == 23
+
+
+@pytest.mark.parametrize("name", LIB_NAMES)
+def test_library_4_words_all_faults_all_pairs(name):
+    test = find_in_library(name)
+    mem = make_memory(4, 1)
+    assert_agree(test, mem, list(LIB_KINDS), ALL_PAIRS)
+
+
+@pytest.mark.parametrize("i,name", list(enumerate(LIB_NAMES)))
+def test_library_3x2_all_faults_all_pairs(i, name):
+    test = find_in_library(name)
+    mem = make_memory(3, 2)
+    assert_agree(test, mem, _rotating_subset(LIB_KINDS, i, 3), ALL_PAIRS)
+
+
+@pytest.mark.parametrize("i,name", list(enumerate(LIB_NAMES)))
+def test_library_4x2_gray_two_backgrounds(i, name):
+    """Word-oriented, mux 2, Gray order, two backgrounds, slow reads: a sixth of the
+    two-cell kinds per test (every kind over the library), all pairs."""
+    test = find_in_library(name)
+    mem = make_memory(4, 2, mux=2, order="gray", backgrounds=("solid", "checkerboard"),
+                      clock="50MHz", read_cycles=2)
+    assert_agree(test, mem, _rotating_subset(LIB_KINDS, i, 6), ALL_PAIRS)
+
+
+def test_library_published_claims_on_4_words():
+    """Two published claims through the reference verdicts, as a sanity anchor:
+    March SS detects all 48 static primitives (Hamdioui, van de Goor, Rodgers, MTDT 2002);
+    MATS+ detects SAF and AF (Abadir & Reghbati, ACM Computing Surveys 1983)."""
+    mem = make_memory(4, 1)
+    ss = find_in_library("March SS")
+    static = list(select_faults("static").kinds)
+    assert all(d for d, _ in assert_agree(ss, mem, static, ALL_PAIRS)[1])
+    mats = find_in_library("MATS+")
+    assert all(d for d, _ in assert_agree(mats, mem, list(select_faults("SAF,AF").kinds), ALL_PAIRS)[1])
+
+
+# ---------------------------------------------------------------------------------------
+# the all-pairs counting path
+
+
+PAIR_MEMORIES = [
+    dict(words=5),
+    dict(words=8, bits=2, mux=2, order="gray", backgrounds=("checkerboard",)),
+    dict(words=6, bits=3, mux=3, order="complement", backgrounds=("rows", "word")),
+    dict(words=16, bits=4, mux=4, order="random:3", backgrounds=("columns", "checkerboard"),
+         scramble_xor=5),
+    dict(words=12, bits=2, mux=3, order="stride:2", backgrounds=("solid", "rows", "columns")),
+    dict(words=32, bits=1, mux=8, order="stride:1", backgrounds=("checkerboard", "columns"),
+         scramble_bits=(4, 0, 3, 1, 2)),
+]
+
+
+def _explicit_counts(mem):
+    """counts[structure, key a, key v] by walking every ordered pair of distinct cells
+    (structure 1 aggressor word first, 2 victim word first, 3 same word)."""
+    bg = background_stack(mem)
+    R = bg.shape[0]
+    rank = ranks(address_order(mem))
+    key = [sum(int(bg[r, c // mem.bits, c % mem.bits]) << r for r in range(R)) for c in range(mem.cells)]
+    out = np.zeros((4, 1 << R, 1 << R), dtype=np.int64)
+    for a in range(mem.cells):
+        for v in range(mem.cells):
+            if a == v:
+                continue
+            wa, wv = a // mem.bits, v // mem.bits
+            s = 3 if wa == wv else (1 if rank[wa] < rank[wv] else 2)
+            out[s, key[a], key[v]] += 1
+    return out
+
+
+@pytest.mark.parametrize("kw", PAIR_MEMORIES, ids=lambda kw: f"{kw['words']}x{kw.get('bits', 1)}")
+def test_pair_counts_all_matches_enumeration(kw):
+    mem = make_memory(**kw)
+    prep = Prepared(find_in_library("March C-"), mem)
+    closed = _pair_counts_all(prep)
+    want = _explicit_counts(mem)
+    assert np.array_equal(closed, want)
+    a, v = zip(*[(i, j) for i in range(mem.cells) for j in range(mem.cells) if i != j])
+    assert np.array_equal(_pair_counts_explicit(prep, np.array(a), np.array(v)), want)
+    assert int(closed.sum()) == mem.cells * (mem.cells - 1)   # ordered pairs: n(n-1)
+
+
+@pytest.mark.parametrize("kw", PAIR_MEMORIES[1:4], ids=lambda kw: f"{kw['words']}x{kw.get('bits', 1)}")
+@pytest.mark.parametrize("test_name", ["March SS", "March C-", "IFA-9"])
+def test_all_pairs_grade_matches_explicit_paths(kw, test_name):
+    """``--pairs all`` (closed-form counting) gives the same counts per kind as the same
+    pairs listed explicitly (``sample:K`` with K ≥ n(n−1) lists every pair), and as the
+    engine's own per-instance verdicts over the enumeration."""
+    mem = make_memory(**kw)
+    test = find_in_library(test_name)
+    kinds = select_faults("static,CFin,CFid,AF").kinds
+    sel = FaultSelection(kinds, "static,CFin,CFid,AF")
+    every = parse_pairs(f"sample:{mem.cells * (mem.cells - 1)}")
+    closed = Engine(test, mem).grade(sel, ALL_PAIRS)
+    listed = Engine(test, mem).grade(sel, every)
+    for c, l in zip(closed, listed):
+        assert (c.kind.text, c.instances, c.detected) == (l.kind.text, l.instances, l.detected)
+        assert c.complete_by == l.complete_by and c.missed_structures == l.missed_structures
+    if mem.cells > 16 or background_stack(mem).shape[0] > 2:
+        return   # per-instance verdicts: kept to the 8x2 memory, for CI time
+    # one call for all instances: the engine builds its verdict tables once per call
+    checked = [(k, r) for k, r in zip(kinds, closed) if not (k.family == "af" and mem.words > 8)]
+    groups = [list(enumerate_instances(k, mem, ALL_PAIRS)) for k, _ in checked]
+    verdicts = Engine(test, mem).instance_verdicts([i for g in groups for i in g])
+    pos = 0
+    for (kind, res), group in zip(checked, groups):
+        got = verdicts[pos:pos + len(group)]
+        pos += len(group)
+        assert res.instances == len(group)
+        assert res.detected == sum(d for d, _ in got), kind.text
+
+
+# ---------------------------------------------------------------------------------------
+# retention timing against a hand calculation
+
+
+def test_drf_boundary_hand_calculation():
+    """{⇑(w0); Del(D); ⇓(r0)} on 4 words, 1 cycle per operation at 100 MHz (so 1 cycle =
+    10 ns).  Word w is written at cycle w and read at cycle 4 + D + (3 − w): the gap is
+    7 + D − 2w cycles (derived from the schedule definition; common practice, no source).
+    A DRF0 with τ equal to a gap is caught (the read comes at least τ later); one cycle
+    longer is not.  DRF1 is never caught: the cells hold 0."""
+    D = 1000                                                    # 10 us = 1000 cycles
+    test = MarchTest((Element("up", (Op("w", 0),)), Delay(Decimal(10), "us"),
+                      Element("down", (Op("r", 0),))), name="retention probe")
+    mem = make_memory(4, 1, clock="100MHz")
+    gaps = {w: 7 + D - 2 * w for w in range(4)}
+    assert gaps == {0: 1007, 1: 1005, 2: 1003, 3: 1001}
+    for tau_cycles in (1001, 1002, 1005, 1006, 1007, 1008):
+        tau = Fraction(tau_cycles, 10**8)
+        kinds = list(select_faults("DRF", retention=[tau]).kinds)
+        _, ref = assert_agree(test, mem, kinds, ALL_PAIRS)
+        drf0 = [d for d, _ in ref[:4]]
+        drf1 = [d for d, _ in ref[4:]]
+        assert drf0 == [gaps[w] >= tau_cycles for w in range(4)], tau_cycles
+        assert drf1 == [False] * 4
+        for w, (d, where) in enumerate(ref[:4]):
+            if d:
+                assert where == Detection(run=0, element=1, op=0, address=w, cycle=4 + D + 3 - w)
+
+
+def test_drf_slow_clock_and_multicycle_ops():
+    """The same probe, 3-cycle writes and 2-cycle reads at 1 MHz: word w is written at
+    cycle 3w, the 4 reads start at 12 + D and read w at 12 + D + 2(3 − w); D = 10 us = 10
+    cycles, so the gap is 28 − 5w cycles of 1 us (derived from the schedule definition)."""
+    test = MarchTest((Element("up", (Op("w", 1),)), Delay(Decimal(10), "us"),
+                      Element("down", (Op("r", 1),))), name="retention probe")
+    mem = make_memory(4, 1, clock="1MHz", write_cycles=3, read_cycles=2)
+    gaps = [28 - 5 * w for w in range(4)]
+    for tau_us in (13, 14, 18, 23, 28, 29):
+        kinds = list(select_faults("DRF", retention=[Fraction(tau_us, 10**6)]).kinds)
+        _, ref = assert_agree(test, mem, kinds, ALL_PAIRS)
+        assert [d for d, _ in ref[:4]] == [False] * 4                     # DRF0: cells hold 1
+        assert [d for d, _ in ref[4:]] == [g >= tau_us for g in gaps], tau_us
