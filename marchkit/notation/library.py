@@ -15,9 +15,9 @@ def patterns_dir() -> Path:
     try:
         from importlib.resources import files
 
-        p = files("marchkit.patterns")
-        if p.joinpath("published.march").is_file():
-            return Path(str(p))
+        p = files("marchkit.patterns").joinpath("published.march")
+        if p.is_file():
+            return Path(str(p)).parent
     except (ModuleNotFoundError, TypeError, FileNotFoundError):
         pass
     return Path(__file__).resolve().parents[2] / "patterns"
