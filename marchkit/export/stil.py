@@ -1,0 +1,179 @@
+"""``stil``: IEEE 1450-1999 STIL.
+
+The file has, in this order, the ``STIL 1.0`` statement, a ``Header``, ``Signals``,
+``SignalGroups``, one ``Timing`` block with one ``WaveformTable`` (named ``cycle``, period =
+one clock cycle), a ``PatternBurst``, a ``PatternExec`` and one ``Pattern`` (``march``).
+
+Signals (one per bit; a group lists its bits most significant first):
+
+========  =====  ================================================================
+group     type   meaning
+========  =====  ================================================================
+``CLK``   In     clock: low at the start of the cycle, rises at half the period
+``ADDR``  In     ``ADR[0]`` … ``ADR[A-1]``: the word address (logical or physical)
+``DIN``   In     ``DI[0]`` … ``DI[B-1]``: write data (0 when not writing)
+``WE``    In     write enable (1 on every cycle of a write)
+``RE``    In     read strobe (1 on every cycle of a read)
+``DOUT``  Out    ``DO[0]`` … ``DO[B-1]``: compared at three quarters of the period:
+                 ``H``/``L`` expect 1/0, ``X`` is not compared
+========  =====  ================================================================
+
+Every cycle is one ``V`` statement that assigns every group (inputs ``0``/``1`` drive
+low/high, ``CLK`` is ``P``: one pulse); a read is compared (``H``/``L``) in its last cycle
+only, other cycles have ``X`` on ``DOUT``.  An idle run of two cycles or more (a delay) is
+``Loop N { V { … } }``.  ``Ann`` annotations mark each background run, element and delay.
+The number of cycles (a ``Loop`` counting ``N``) equals ``Schedule.cycles``.
+"""
+
+from __future__ import annotations
+
+import re
+from fractions import Fraction
+
+import numpy as np
+
+from .. import __version__
+from .text import Row, bin_text, put_address, put_data, table
+
+WFT = "cycle"
+PATTERN = "march"
+
+
+def time_text(seconds: Fraction) -> str:
+    """A STIL time expression in ns: exact when it has at most 9 decimals, else 6 decimals."""
+    ns = Fraction(seconds) * 10**9
+    for places in range(10):
+        scaled = ns * 10**places
+        if scaled.denominator == 1:
+            n = scaled.numerator
+            if places == 0:
+                return f"'{n}ns'"
+            s = f"{n // 10**places}.{n % 10**places:0{places}d}"
+            return f"'{s}ns'"
+    return f"'{float(ns):.6f}ns'"
+
+
+def ann_text(s: str) -> str:
+    """Annotation text that every STIL reader takes (no '*', quotes or non-ASCII)."""
+    s = s.replace("*", "^").replace('"', "'")
+    return re.sub(r"[^A-Za-z0-9_ (){}\[\]<>^,;:.=+\-/'#%&!?|~@$]", "_", s)
+
+
+def quoted(s: str) -> str:
+    return '"' + re.sub(r'[^ -~]|["\\]', "_", s) + '"'
+
+
+def bus(prefix: str, n: int) -> str:
+    return "+".join(f"{prefix}[{i}]" for i in range(n - 1, -1, -1))
+
+
+def header(plan) -> str:
+    mem = plan.mem
+    A, B = plan.address_bits, plan.bits
+    period = Fraction(1) / mem.clock_hz
+    sigs = ["    CLK In;"]
+    sigs += [f"    ADR[{i}] In;" for i in range(A)]
+    sigs += [f"    DI[{i}] In;" for i in range(B)]
+    sigs += ["    WE In;", "    RE In;"]
+    sigs += [f"    DO[{i}] Out;" for i in range(B)]
+    sig_text = "\n".join(sigs)
+    exact = (Fraction(period) * 10**18).denominator == 1          # at most 9 decimals of ns
+    period_note = "" if exact else f"; the clock period is {time_text(period)[1:-1]} rounded"
+    return f"""STIL 1.0;
+
+Header {{
+    Title {quoted(f"marchkit: {plan.test.display_name} on {mem.name or 'memory'}")};
+    Source {quoted(f"marchkit {__version__}")};
+    Ann {{* {ann_text(plan.describe())} *}}
+    Ann {{* {plan.cycles} cycles in {plan.runs} background run(s){period_note} *}}
+}}
+
+Signals {{
+{sig_text}
+}}
+
+SignalGroups {{
+    ADDR = '{bus("ADR", A)}';
+    DIN = '{bus("DI", B)}';
+    DOUT = '{bus("DO", B)}';
+}}
+
+Timing {{
+    WaveformTable {WFT} {{
+        Period {time_text(period)};
+        Waveforms {{
+            CLK {{ P {{ '0ns' D; {time_text(period / 2)} U; }} }}
+            ADDR {{ 01 {{ '0ns' D/U; }} }}
+            DIN {{ 01 {{ '0ns' D/U; }} }}
+            WE {{ 01 {{ '0ns' D/U; }} }}
+            RE {{ 01 {{ '0ns' D/U; }} }}
+            DOUT {{ LHX {{ '0ns' X; {time_text(period * 3 / 4)} L/H/X; }} }}
+        }}
+    }}
+}}
+
+PatternBurst {PATTERN}_burst {{
+    PatList {{ {PATTERN}; }}
+}}
+
+PatternExec {{
+    PatternBurst {PATTERN}_burst;
+}}
+
+Pattern {PATTERN} {{
+    W {WFT};
+"""
+
+
+def write_stil(plan, f, **_) -> dict:
+    from ..notation.printer import format_item
+
+    A, B = plan.address_bits, plan.bits
+    f.write(header(plan).encode())
+    zeros_a = "0" * A
+    zero_d, x_d = "0" * B, "X" * B
+    idle_v = f"V {{ CLK=P; ADDR={zeros_a}; DIN={zero_d}; WE=0; RE=0; DOUT={x_d}; }}"
+    # "DIN=...; WE=.; RE=.; DOUT=...;" comes from one table per background run
+    probe = f"{zero_d}; WE=1; RE=0; DOUT={x_d};"
+    row = (Row().lit("    V { CLK=P; ADDR=").field("address", A).lit("; DIN=")
+           .field("data", len(probe)).lit(" }\n"))
+    data_tabs: dict[int, np.ndarray] = {}
+    vectors = loops = 0
+    last_run = None
+    for b in plan.blocks():
+        seg = b.seg
+        if seg.run != last_run:
+            f.write(f"    Ann {{* run {seg.run}: background {ann_text(plan.run_names[seg.run])} *}}\n".encode())
+            last_run = seg.run
+        if b.is_idle:
+            item = plan.test.items[seg.item]
+            f.write(f"    Ann {{* {ann_text(format_item(item, ascii=True))}: {b.count} idle cycles *}}\n".encode())
+            if b.count == 1:
+                f.write(f"    {idle_v}\n".encode())
+            else:
+                f.write(f"    Loop {b.count} {{ {idle_v} }}\n".encode())
+                loops += 1
+            vectors += 1
+            continue
+        if b.start == seg.start:
+            el = plan.test.elements[seg.element]
+            note = " run as up" if seg.order == "any" else ""
+            f.write(f"    Ann {{* element {seg.element} {ann_text(format_item(el, ascii=True))}{note} *}}\n".encode())
+        if seg.run not in data_tabs:
+            words = plan.words[seg.run]
+            d01 = bin_text(words, B)
+            dhl = bin_text(words, B, b"LH")
+            texts = []
+            for d, hl in zip(d01, dhl):
+                d, hl = d.decode(), hl.decode()
+                texts += [f"{d}; WE=1; RE=0; DOUT={x_d};",
+                          f"{zero_d}; WE=0; RE=1; DOUT={x_d};",
+                          f"{zero_d}; WE=0; RE=1; DOUT={hl};"]
+            data_tabs[seg.run] = table(texts)
+        buf = row.buffer(b.count)
+        put_address(row, buf, "address", b, "bin")
+        put_data(row, buf, "data", b, data_tabs[seg.run])
+        f.write(buf)
+        vectors += b.count
+    f.write(b"}\n")
+    return {"vectors": vectors, "loops": loops}
