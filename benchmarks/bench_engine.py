@@ -29,6 +29,7 @@ import shutil
 import statistics
 import subprocess
 import sys
+import tempfile
 import time
 from pathlib import Path
 
@@ -38,11 +39,11 @@ WORKLOADS = [
     dict(name="March SS 4096x1 static, all pairs", test="March SS",
          mem=dict(words=4096, bits=1), faults="static", pairs="all",
          small=dict(words=8, bits=1), small_quick=dict(words=4, bits=1),
-         cli=["--words", "4096", "--bits", "1", "--faults", "static", "--pairs", "all"]),
+         cli=["March SS", "--words", "4096", "--bits", "1", "--faults", "static", "--pairs", "all"]),
     dict(name="March SS 65536x16 static,SAF,TF,SOF,AF,DRF, neighbours", test="March SS",
          mem=dict(words=65536, bits=16), faults="static,SAF,TF,SOF,AF,DRF", pairs="neighbours",
          small=dict(words=4, bits=4), small_quick=dict(words=2, bits=4),
-         cli=["--words", "65536", "--bits", "16", "--faults", "static,SAF,TF,SOF,AF,DRF",
+         cli=["March SS", "--words", "65536", "--bits", "16", "--faults", "static,SAF,TF,SOF,AF,DRF",
               "--pairs", "neighbours"]),
 ]
 SCALING_WORDS = (64, 256, 1024, 4096, 16384)
@@ -103,21 +104,29 @@ def in_child(kind: str, spec: dict) -> dict:
 
 
 def run_cli(args: list[str]) -> dict | None:
+    """One whole ``marchkit grade ... --json`` process: wall time, its counts and its own
+    peak RSS (``os.wait4`` gives the resource usage of that one child)."""
     exe = shutil.which("marchkit")
     if exe is None or not (ROOT / "marchkit" / "cli" / "cmd_grade.py").exists():
         return None
-    t0 = time.perf_counter()
-    out = subprocess.run([exe, "grade", *args, "--json"], capture_output=True, text=True)
-    dt = time.perf_counter() - t0
-    if out.returncode:
-        return {"error": f"exit {out.returncode}: {out.stderr.strip()[:300]}", "seconds": dt}
-    ru = resource.getrusage(resource.RUSAGE_CHILDREN)
+    with tempfile.TemporaryFile() as fo, tempfile.TemporaryFile() as fe:
+        t0 = time.perf_counter()
+        proc = subprocess.Popen([exe, "grade", *args, "--json"], stdout=fo, stderr=fe)
+        _, status, ru = os.wait4(proc.pid, 0)
+        dt = time.perf_counter() - t0
+        proc.returncode = os.waitstatus_to_exitcode(status)
+        fo.seek(0)
+        fe.seek(0)
+        stdout, stderr = fo.read().decode(), fe.read().decode()
+    if proc.returncode:
+        last = (stderr.strip().splitlines() or [""])[-1]
+        return {"error": f"exit {proc.returncode}: {last[:300]}", "seconds": dt}
     try:
-        total = json.loads(out.stdout)["total"]
+        total = json.loads(stdout)["total"]
     except (ValueError, KeyError):
         return {"error": "output is not the grade JSON", "seconds": dt}
     return {"seconds": dt, "instances": total["instances"], "detected": total["detected"],
-            "children_peak_rss_mb": ru.ru_maxrss / 1024}
+            "rss_mb": ru.ru_maxrss / 1024}
 
 
 # ---------------------------------------------------------------------------------------
@@ -157,7 +166,7 @@ def main(argv=None) -> int:
     print(f"marchkit {marchkit.__version__}, Python {sys.version.split()[0]}, numpy {numpy.__version__}, "
           f"{os.cpu_count()} CPUs, load average {', '.join(f'{x:.2f}' for x in os.getloadavg())}")
     print("times are wall-clock seconds of marchkit.grade.grade() in a fresh process "
-          f"(engine: best and median of {repeat}; reference: one run)\n")
+          f"(engine: best and median of {repeat}; reference: one run); CLI: one whole process\n")
 
     for w in WORKLOADS:
         small = w["small_quick" if args.quick else "small"]
@@ -191,9 +200,11 @@ def main(argv=None) -> int:
             elif "error" in cli:
                 print(f"   CLI: marchkit grade ... --json failed after {cli['seconds']:.2f} s: {cli['error']}")
             else:
-                same = "yes" if cli["instances"] == big["instances"] else "NO"
-                print(f"   CLI whole process (marchkit grade {' '.join(w['cli'])} --json): "
-                      f"{cli['seconds']:.2f} s, {fmt_n(cli['instances'])} instances (same count: {same})")
+                same = "yes" if (cli["instances"], cli["detected"]) == (big["instances"], big["detected"]) else "NO"
+                shown = " ".join(f"'{a}'" if " " in a else a for a in w["cli"])
+                print(f"   CLI whole process (marchkit grade {shown} --json): {cli['seconds']:.2f} s, "
+                      f"{fmt_n(cli['instances'])} instances (same counts as above: {same}), "
+                      f"peak RSS {cli['rss_mb']:.0f} MB")
         print()
 
     print("== scaling: March SS, static primitives, all ordered pairs, bits 1 (engine)")

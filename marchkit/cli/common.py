@@ -85,27 +85,9 @@ def load_test(spec: str, check: bool = True):
 
 def atomic_write(path: str | Path, data: bytes | str, force: bool = False) -> None:
     """Write a whole file under a temporary name, then rename it into place."""
-    from ..errors import OutputError
+    from ..files import write_file
 
-    p = Path(path)
-    if p.exists() and not force:
-        raise OutputError(f"{p} exists; use --force to replace it")
-    if isinstance(data, str):
-        data = data.encode("utf-8")
-    d = p.parent if str(p.parent) else Path(".")
-    if not d.is_dir():
-        raise OutputError(f"cannot write {p}: no directory {d}")
-    fd, tmp = tempfile.mkstemp(prefix=f".{p.name}.", suffix=".part", dir=d)
-    try:
-        with os.fdopen(fd, "wb") as f:
-            f.write(data)
-        os.replace(tmp, p)
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except OSError:
-            pass
-        raise
+    write_file(path, data, force=force)
 
 
 def stdout_is_terminal() -> bool:

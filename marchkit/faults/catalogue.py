@@ -34,7 +34,7 @@ def format_seconds(s: Fraction) -> str:
         if v >= 1 or unit == "ns":
             if v.denominator == 1:
                 return f"{v.numerator}{unit}"
-            return f"{float(v):.6g}{unit}"
+            return f"{float(v):.15g}{unit}"
     return f"{float(s)}s"  # pragma: no cover
 
 

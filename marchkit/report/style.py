@@ -12,6 +12,7 @@ from __future__ import annotations
 from pathlib import Path
 
 from ..errors import OutputError
+from ..files import write_file  # noqa: F401  (re-exported for the report layer)
 
 BLUE = "#0072B2"
 VERMILLION = "#D55E00"
@@ -79,32 +80,3 @@ def save_figure(fig, path, force: bool = False, dpi: int = 130) -> None:
     write_file(path, figure_bytes(fig, fmt, dpi=dpi), force=force)
 
 
-def write_file(path, data: bytes | str, force: bool = False) -> None:
-    """Write a whole file under a temporary name in its directory, then ``os.replace`` it
-    into place, so a reader never sees half a file.  An existing file is an error unless
-    ``force``.  (The same contract as the command line's writer; kept here so this layer
-    does not import the command line.)"""
-    import os
-    import tempfile
-
-    p = Path(path)
-    if p.exists() and not force:
-        raise OutputError(f"{p} exists; use --force to replace it")
-    if p.is_dir():
-        raise OutputError(f"{p} is a directory")
-    d = p.parent if str(p.parent) else Path(".")
-    if not d.is_dir():
-        raise OutputError(f"cannot write {p}: no directory {d}")
-    if isinstance(data, str):
-        data = data.encode("utf-8")
-    fd, tmp = tempfile.mkstemp(prefix=f".{p.name}.", suffix=".part", dir=d)
-    try:
-        with os.fdopen(fd, "wb") as f:
-            f.write(data)
-        os.replace(tmp, p)
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except OSError:
-            pass
-        raise
