@@ -93,6 +93,58 @@ def measure_reference(spec: dict) -> dict:
             "rss_mb": _peak_rss_mb()}
 
 
+def measure_reference_sample(spec: dict) -> dict:
+    """Reference simulator on a seeded random sample of the *big* workload's instances (same
+    memory, test and faults), instance by instance until a time budget is spent; the engine's
+    verdicts for the same instances are compared."""
+    import random
+
+    import numpy as np
+
+    from marchkit.engine.fast import Engine
+    from marchkit.engine.reference import reference_verdicts
+    from marchkit.faults import (DEFAULT_RETENTION, Instance, cell_pairs, instance_count,
+                                 parse_pairs, select_faults, word_pairs)
+    from marchkit.model import make_memory, schedule
+    from marchkit.notation import find_in_library
+
+    test = find_in_library(spec["test"])
+    mem = make_memory(**spec["mem"])
+    sel = select_faults(spec["faults"], DEFAULT_RETENTION)
+    scope = parse_pairs(spec["pairs"])
+    rng = random.Random(7)
+    weights = [instance_count(k, mem, scope) for k in sel.kinds]
+    explicit = {}
+
+    def draw():
+        kind = rng.choices(sel.kinds, weights)[0]
+        n = mem.words if kind.family == "af" else mem.cells
+        if kind.arity == 1:
+            return Instance(kind, (rng.randrange(n),))
+        key = "af" if kind.family == "af" else "cells"
+        if key not in explicit:
+            explicit[key] = (word_pairs if key == "af" else cell_pairs)(mem, scope)
+        pairs = explicit[key]
+        if pairs is None:
+            a = rng.randrange(n)
+            v = rng.randrange(n - 1)
+            return Instance(kind, (a, v + (v >= a)))
+        i = rng.randrange(pairs[0].size)
+        return Instance(kind, (int(pairs[0][i]), int(pairs[1][i])))
+
+    sched = schedule(test, mem)
+    insts, verdicts = [], []
+    t0 = time.perf_counter()
+    while not insts or (time.perf_counter() - t0 < spec["budget"] and len(insts) < 200):
+        inst = draw()
+        verdicts += reference_verdicts(test, mem, [inst], sched, limit=float("inf"))
+        insts.append(inst)
+    dt = time.perf_counter() - t0
+    agree = Engine(test, mem, sched).instance_verdicts(insts) == verdicts
+    return {"instances": len(insts), "detected": sum(d for d, _ in verdicts), "times": [dt],
+            "agree": agree, "rss_mb": _peak_rss_mb()}
+
+
 def in_child(kind: str, spec: dict) -> dict:
     out = subprocess.run(
         [sys.executable, __file__, "--child", json.dumps({"kind": kind, "spec": spec})],
@@ -154,7 +206,8 @@ def main(argv=None) -> int:
     args = ap.parse_args(argv)
     if args.child:
         job = json.loads(args.child)
-        fn = measure_engine if job["kind"] == "engine" else measure_reference
+        fn = {"engine": measure_engine, "reference": measure_reference,
+              "sample": measure_reference_sample}[job["kind"]]
         print(json.dumps(fn(job["spec"])))
         return 0
 
@@ -193,6 +246,13 @@ def main(argv=None) -> int:
         print(f"   speed-up, same size ({sm_txt}, engine rate / reference rate): {r_es / r_ref:,.0f}x")
         print(f"   speed-up, big vs small (engine rate at {mem_txt} / reference rate at {sm_txt}): "
               f"{r_big / r_ref:,.0f}x")
+        samp = in_child("sample", dict(base, mem=w["mem"], budget=10 if args.quick else 30))
+        r_samp = samp["instances"] / samp["times"][0]
+        print(f"   reference {mem_txt:>9}: a random sample of {samp['instances']} instances of this workload, "
+              f"{samp['times'][0]:.1f} s, {fmt_rate(r_samp)}; engine verdicts on them agree: "
+              f"{'yes' if samp['agree'] else 'NO'}")
+        print(f"   speed-up, same workload ({mem_txt}, engine rate / reference rate on its sample): "
+              f"{r_big / r_samp:,.0f}x")
         if not args.no_cli:
             cli = run_cli(w["cli"])
             if cli is None:

@@ -11,7 +11,10 @@ cycles) in a fresh process and measures
 * the time to write the same number of bytes "raw" (a 1 MiB buffer written over and over
   to a plain file in the same directory, then closed), in another fresh process;
 * the time of the export to /dev/null (no disk: what the formatting costs);
-* the peak resident memory (ru_maxrss) of the export process.
+* the peak resident memory (VmHWM) of the export process.
+
+Each run starts after ``sync`` (no dirty pages left by the previous one).  Both are timed
+twice: into the page cache (``ratio``), and including ``fsync`` of the files (``ratio+sync``).
 
 Runs alternate (export, raw, export, raw, …) so that both see the same state of the disk;
 the median of ``--repeat`` runs is reported.  The export should take at most 3× the raw write
@@ -43,9 +46,26 @@ def child_export(args) -> None:
     t0 = time.perf_counter()
     res = export(test, mem, args.out, args.child, force=True)
     dt = time.perf_counter() - t0
-    peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
-    print(json.dumps({"seconds": dt, "bytes": res.bytes, "cycles": res.cycles,
-                      "rss_kb": peak, "rss_before_kb": base}))
+    t0 = time.perf_counter()
+    for p in res.files:
+        if os.path.isfile(p):
+            fd = os.open(p, os.O_RDONLY)
+            os.fsync(fd)
+            os.close(fd)
+    flush = time.perf_counter() - t0
+    print(json.dumps({"seconds": dt, "flush": flush, "bytes": res.bytes, "cycles": res.cycles,
+                      "rss_kb": peak_rss_kb(), "rss_before_kb": base}))
+
+
+def peak_rss_kb() -> int:
+    """This process's own peak (VmHWM; ru_maxrss can include the parent's memory at fork)."""
+    try:
+        with open("/proc/self/status") as f:
+            return int(next(line for line in f if line.startswith("VmHWM")).split()[1])
+    except (OSError, StopIteration):
+        import resource
+
+        return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
 
 
 def child_raw(args) -> None:
@@ -58,10 +78,16 @@ def child_raw(args) -> None:
             f.write(buf[:n] if n < len(buf) else buf)
             left -= n
     dt = time.perf_counter() - t0
-    print(json.dumps({"seconds": dt}))
+    t0 = time.perf_counter()
+    fd = os.open(args.out, os.O_RDONLY)
+    os.fsync(fd)
+    os.close(fd)
+    print(json.dumps({"seconds": dt, "flush": time.perf_counter() - t0}))
 
 
 def run_child(argv) -> dict:
+    if hasattr(os, "sync"):
+        os.sync()            # every run starts with no dirty pages of an earlier one
     r = subprocess.run([sys.executable, __file__] + argv, capture_output=True, text=True)
     if r.returncode:
         sys.exit(f"benchmark child failed:\n{r.stderr}")
@@ -89,28 +115,33 @@ def main() -> None:
     d = args.dir or tempfile.mkdtemp(prefix="bench_export.", dir=".")
     common = ["--words", str(args.words), "--bits", str(args.bits), "--test", args.test]
     print(f"{args.test} on {args.words} words x {args.bits} bits; median of {args.repeat} runs; files in {d}")
+    print("export s / raw s: writing into the page cache; +sync: including the flush to disk (fsync)")
     print(f"{'format':7} {'cycles':>10} {'MB':>7} {'export s':>9} {'MB/s':>6} {'raw s':>7} {'ratio':>6} "
-          f"{'no-disk s':>9} {'peak RSS MB':>11}")
+          f"{'ratio+sync':>10} {'no-disk s':>9} {'peak RSS MB':>11}")
     try:
         for fmt in args.formats.split(","):
             out = os.path.join(d, f"bench.{fmt}")
             raw = os.path.join(d, "raw.bin")
-            ex, rw, nd, rss = [], [], [], []
+            ex, rw, nd, rss, exs, rws = [], [], [], [], [], []
             info = None
             for _ in range(args.repeat):
                 info = run_child(common + ["--child", fmt, "--out", out])
                 ex.append(info["seconds"])
+                exs.append(info["seconds"] + info["flush"])
                 rss.append(info["rss_kb"])
                 stem = os.path.splitext(out)[0]
                 for p in [out] + ([stem + "_tb.v", stem + "_sram.v"] if fmt == "hex" else []):
                     os.unlink(p)
-                rw.append(run_child(["--raw", "--out", raw, "--bytes", str(info["bytes"])])["seconds"])
+                r = run_child(["--raw", "--out", raw, "--bytes", str(info["bytes"])])
+                rw.append(r["seconds"])
+                rws.append(r["seconds"] + r["flush"])
                 os.unlink(raw)
                 nd.append(run_child(common + ["--child", fmt, "--out", "/dev/null"])["seconds"])
             e, r, n = statistics.median(ex), statistics.median(rw), statistics.median(nd)
             mb = info["bytes"] / 1e6
+            rs = statistics.median(exs) / statistics.median(rws)
             print(f"{fmt:7} {info['cycles']:>10} {mb:>7.0f} {e:>9.2f} {mb / e:>6.0f} {r:>7.2f} {e / r:>6.2f} "
-                  f"{n:>9.2f} {max(rss) / 1024:>11.0f}", flush=True)
+                  f"{rs:>10.2f} {n:>9.2f} {max(rss) / 1024:>11.0f}", flush=True)
     finally:
         if not args.dir:
             try:

@@ -28,6 +28,9 @@ def write_file(path, data: bytes | str, force: bool = False) -> None:
     try:
         with os.fdopen(fd, "wb") as f:
             f.write(data)
+        mask = os.umask(0)
+        os.umask(mask)
+        os.chmod(tmp, 0o666 & ~mask)     # mkstemp makes 0600; a plain file follows the umask
         os.replace(tmp, p)
     except BaseException:
         try:

@@ -581,21 +581,25 @@ class Engine:
         if rules:
             kinds = list({instances[i].kind.text: instances[i].kind for i in rules}.values())
             kidx = {k.text: j for j, k in enumerate(kinds)}
-            self._present_keys = {}
-            tables = self._rules_tables(kinds)
+            keyed = []
+            K = prep.K
+            self._present_keys = {st: np.zeros((K, K), dtype=bool) for st in STRUCTURES}
             for i in rules:
                 inst = instances[i]
-                j = kidx[inst.kind.text]
                 if inst.kind.arity == 1:
                     c = inst.sites[0]
                     s, ka, kv = SINGLE, 0, int(prep.cell_key[c])
-                    vword = c // prep.B
-                    aword = vword
+                    aword = vword = c // prep.B
                 else:
                     a, v = inst.sites
                     s = int(_pair_structure(prep, np.array([a]), np.array([v]))[0])
                     ka, kv = int(prep.cell_key[a]), int(prep.cell_key[v])
                     aword, vword = a // prep.B, v // prep.B
+                self._present_keys[s][ka, kv] = True   # simulate only the keys asked about
+                keyed.append((i, s, ka, kv, aword, vword))
+            tables = self._rules_tables(kinds)
+            for i, s, ka, kv, aword, vword in keyed:
+                j = kidx[instances[i].kind.text]
                 det, evt, events = tables[s]
                 if not det[j, ka, kv]:
                     out[i] = (False, None)
