@@ -145,3 +145,16 @@ def test_reference_engine_gives_the_same_grade(cli):
 def test_primitive_rows_cover_every_static_primitive():
     res = grade(find_in_library("March C-"), make_memory(8), "static", "all")
     assert [p.fault for p in res.primitives] == [k.text for k in STATIC]
+
+
+def test_reference_and_fast_agree_on_every_class_row_field():
+    # first/complete-by elements and reasons too, not only the counts
+    mem = make_memory(5, 2, order="gray", backgrounds="solid,checkerboard")
+    for name in ("MATS++", "March C-", "IFA-9", "PMOVI"):
+        t = find_in_library(name)
+        a = grade(t, mem, "all", "all")
+        b = grade(t, mem, "all", "all", engine="reference")
+        assert a.classes == b.classes and a.primitives == b.primitives, name
+        for c in a.classes:
+            if c.detected:
+                assert c.first_by is not None and c.first_by <= c.complete_by

@@ -232,11 +232,17 @@ class KindResult:
     instances: int = 0
     detected: int = 0
     complete_by: int | None = None          # element index by which all detected ones are
+    first_by: int | None = None             # earliest element where one is first detected
     missed_structures: set = field(default_factory=set)   # e.g. {"aggressor first"}
 
     def merge_element(self, e):
-        if e is not None and (self.complete_by is None or e > self.complete_by):
+        """Note that some detected instances are first detected in element ``e``."""
+        if e is None:
+            return
+        if self.complete_by is None or e > self.complete_by:
             self.complete_by = e
+        if self.first_by is None or e < self.first_by:
+            self.first_by = e
 
 
 def _pair_counts_all(prep):

@@ -17,6 +17,7 @@ class ClassRow:
     coverage: float
     complete_by: int | None      # element index (0-based) by which every detected one is
     reason: str                  # "" when the whole class is detected
+    first_by: int | None = None  # element index where the class is first detected
 
 
 @dataclass(frozen=True)
@@ -153,8 +154,10 @@ def grade(test, mem, faults="static", pairs="neighbours", retention=None, engine
             continue
         complete = [r.complete_by for r in rs if r.complete_by is not None]
         missed = set().union(*(r.missed_structures for r in rs if r.detected < r.instances)) if d < n else set()
+        firsts = [r.first_by for r in rs if r.first_by is not None]
         classes.append(ClassRow(cls, n, d, _cov(d, n), max(complete) if complete else None,
-                                reason_for(cls, missed, partial=d > 0) if d < n else ""))
+                                reason_for(cls, missed, partial=d > 0) if d < n else "",
+                                min(firsts) if firsts else None))
     prims = [
         PrimitiveRow(r.kind.text, r.kind.cls, r.instances, r.detected,
                      reason_for(r.kind.cls, r.missed_structures, partial=r.detected > 0) if r.detected < r.instances else "")

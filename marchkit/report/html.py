@@ -204,18 +204,20 @@ def html_report(result) -> str:
       f"which every instance of the class that the test detects has been detected (filled circle: the whole "
       f"class; open diamond: part of it).</figcaption></figure>")
     a('<table class="classes"><thead><tr><th>class</th><th class="num">instances</th><th class="num">detected</th>'
-      '<th>coverage</th><th>complete by element</th><th>what is missing</th></tr></thead><tbody>')
+      '<th>coverage</th><th>first detected in</th><th>complete by element</th><th>what is missing</th></tr></thead><tbody>')
     elements = list(t.elements)
     for c in classes:
         short = c.detected < c.instances
-        if c.complete_by is None:
-            where = '<span class="tag">not detected</span>'
-        else:
-            where = f"M{c.complete_by} <code>{_e(_element_text(elements[c.complete_by]))}</code>" \
-                if c.complete_by < len(elements) else f"M{c.complete_by}"
+        def at(e):
+            if e is None:
+                return '<span class="tag">not detected</span>'
+            return f"M{e} <code>{_e(_element_text(elements[e]))}</code>" if e < len(elements) else f"M{e}"
+
+        first = at(getattr(c, "first_by", None) if c.complete_by is not None else None)
+        where = at(c.complete_by)
         a(f'<tr class="{"short" if short else "full"}"><td><b>{_e(c.cls)}</b></td>'
           f'<td class="num">{c.instances:,}</td><td class="num">{c.detected:,}</td>'
-          f"<td>{_meter(c.coverage)}{_pct(c.coverage, c.detected, c.instances)}</td><td>{where}</td>"
+          f"<td>{_meter(c.coverage)}{_pct(c.coverage, c.detected, c.instances)}</td><td>{first}</td><td>{where}</td>"
           f"<td>{_e(c.reason) if short else ALL_DETECTED}</td></tr>")
     a("</tbody></table>")
 
