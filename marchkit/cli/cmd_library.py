@@ -7,7 +7,24 @@ def register(sub):
     p = sub.add_parser("library", help="list the published march tests in the library",
                        description="List the published march tests marchkit ships, with length, targets and source.")
     p.add_argument("--json", action="store_true", help="print JSON instead of a table")
+    p.add_argument("--full", action="store_true", help="show the whole citation of each test")
     p.set_defaults(func=run)
+
+
+def short_source(source: str) -> str:
+    """Authors and year of a citation: 'A. J. van de Goor, Testing …, 1991' → 'A. J. van de Goor, 1991'."""
+    import re
+
+    parts = [x.strip() for x in source.split(",")]
+    names = [parts[0]]
+    for x in parts[1:]:
+        if re.match(r"^(and )?([A-Z][a-z]?\. ?)+[A-Z]", x):
+            names.append(x)
+        else:
+            break
+    authors = names[0] if len(names) == 1 else f"{names[0].split(' and ')[0]} et al."
+    year = re.search(r"\b(19|20)\d\d\b", source)
+    return f"{authors}, {year.group(0)}" if year else authors
 
 
 def run(args) -> int:
@@ -33,6 +50,6 @@ def run(args) -> int:
     table.add_column("targets")
     table.add_column("source")
     for t in tests:
-        table.add_row(t.name, t.length_text, " ".join(t.targets), t.source)
+        table.add_row(t.name, t.length_text, " ".join(t.targets), t.source if args.full else short_source(t.source))
     console().print(table)
     return 0
