@@ -160,3 +160,29 @@ def test_non_editable_install_works_outside_the_repository(tmp_path):
     assert p.returncode == 0 and json.loads(p.stdout)["total"]["coverage"] == 1.0
     p = subprocess.run([str(exe), "show", "{⇕(w0); ⇑(r0"], cwd=elsewhere, capture_output=True, text=True, env=env)
     assert p.returncode == 2 and "<argument>:1:" in p.stderr and "Traceback" not in p.stderr
+
+
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+
+NEAR = st.text(alphabet="{}();,⇑⇓⇕updownany rw01*^×Del ms\n#", min_size=0, max_size=40)
+
+
+@settings(max_examples=150, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(text=st.one_of(NEAR.map(lambda s: "{" + s), st.text(max_size=30)))
+def test_cli_never_shows_a_traceback(cli, text):
+    # any argument, valid or not: exit 0 or 2 and a message, never an uncaught exception
+    code, out, err = cli("show", text)
+    assert code in (0, 2), (text, code, err)
+    assert "Traceback" not in err
+    if code == 2:
+        assert "error:" in err
+
+
+@settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(data=st.binary(max_size=60))
+def test_check_random_files_never_crashes(cli, tmp_path_factory, data):
+    f = tmp_path_factory.mktemp("fuzz") / "f.march"
+    f.write_bytes(data)
+    code, out, err = cli("check", str(f))
+    assert code in (0, 2) and "Traceback" not in err
