@@ -176,3 +176,17 @@ def test_every_library_test_catches_the_classes_it_targets():
             wanted += list(STATIC_CLASSES)
         missed = {x: cov[x] for x in wanted if cov[x] < 1}
         assert not missed, (t.name, missed)
+
+
+def test_forked_workers_give_the_same_counts_as_one_process():
+    from marchkit.engine.fast import Engine
+    from marchkit.faults import parse_pairs, select_faults
+
+    t = find_in_library("March C-")
+    mem = make_memory(16384, 16, mux=4, backgrounds="solid,checkerboard")   # 2^18 cells
+    sel = select_faults("static,SOF,AF,DRF", retention=[Fraction(1, 10**5)])
+    scope = parse_pairs("neighbours")
+    one = Engine(t, mem).grade(sel, scope, workers=1)
+    two = Engine(t, mem).grade(sel, scope, workers=2)
+    assert [(r.kind.text, r.instances, r.detected, r.complete_by, r.first_by, r.missed_structures) for r in one] == \
+           [(r.kind.text, r.instances, r.detected, r.complete_by, r.first_by, r.missed_structures) for r in two]

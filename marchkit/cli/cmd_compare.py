@@ -93,12 +93,14 @@ def run(args) -> int:
         from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
 
         prog = Progress(TextColumn("{task.description}"), BarColumn(), TextColumn("{task.fields[count]}"),
-                        TimeElapsedColumn(), console=console(stderr=True), transient=True)
+                        TimeElapsedColumn(), console=console(stderr=True), transient=True,
+                        auto_refresh=False)   # no refresh thread: the engine may fork
         task = prog.add_task("grading", total=len(tests), count="")
 
         def progress(done, total, label):
             prog.update(task, completed=done, description=f"grading {label}" if label else "done",
                         count=f"{min(int(done) + 1, total)}/{total}")
+            prog.refresh()
 
         with prog:
             cmp = compare_tests(tests, mem, args.faults, args.pairs, retention, args.engine,

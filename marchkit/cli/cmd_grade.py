@@ -69,11 +69,12 @@ def make_progress(enabled: bool):
 
     prog = Progress(TextColumn("{task.description}"), BarColumn(), TimeElapsedColumn(),
                     console=__import__("rich.console", fromlist=["Console"]).Console(stderr=True),
-                    transient=True)
+                    transient=True, auto_refresh=False)   # no refresh thread: the engine may fork
     task = prog.add_task("grading", total=1)
 
     def cb(what, i, n):
         prog.update(task, total=max(n, 1), completed=i, description=f"grading: {what}")
+        prog.refresh()
 
     return prog, cb
 

@@ -221,6 +221,29 @@ def rules_batch(prep, structure, kind_idx, params, bga, bgv):
 
 
 # ---------------------------------------------------------------------------------------
+# parallel grading: a pure function of (engine, family) run in forked workers
+
+_FORKED: dict = {}
+
+
+def _family_work(fam):
+    engine, fams, scope = _FORKED["job"]
+    return engine.grade_family(fam, fams[fam], scope)
+
+
+def _default_workers(prep, n_steps: int) -> int:
+    import multiprocessing
+    import os
+    import threading
+
+    if n_steps < 2 or prep.n * prep.B < (1 << 18) or (os.cpu_count() or 1) < 2:
+        return 1
+    if "fork" not in multiprocessing.get_all_start_methods() or threading.active_count() > 1:
+        return 1
+    return 2
+
+
+# ---------------------------------------------------------------------------------------
 # results
 
 
@@ -530,52 +553,60 @@ class Engine:
     def grade(self, selection, scope, progress=None, workers=None):
         """Counts for every kind of ``selection``.
 
-        Families (primitives, AF, SOF, DRF) are independent pure computations over their
-        kinds; on large arrays they run on two threads (numpy releases the GIL in the heavy
-        array work), otherwise one after the other.
+        The families (primitives, AF, SOF, DRF) are independent pure computations over their
+        kinds (:func:`_family_work`).  On large arrays they run in ``workers`` forked
+        processes (default: 2 where the machine has two cores, the array has at least 2^18
+        cells, fork is available and no other thread is running); measured on the 1 Mbit
+        workload this takes about a third off the grading time.
         """
         fams: dict[str, list] = {}
         for k in selection.kinds:
             fams.setdefault(k.family, []).append(k)
         steps = [f for f in ("rules", "af", "sof", "drf") if f in fams]
-
-        def work(fam):
-            out: dict[str, KindResult] = {}
-            if fam == "rules":
-                self.grade_rules(fams[fam], scope, out)
-            elif fam == "af":
-                self.grade_af(fams[fam], scope, out)
-            elif fam == "sof":
-                self.grade_sof(fams[fam], out)
-            else:
-                self.grade_drf(fams[fam], out)
-            return out
-
-        workers = workers or 1
+        if workers is None:
+            workers = _default_workers(self.prep, len(steps))
         results: dict[str, KindResult] = {}
         done = 0
         if progress:
             progress(steps[0] if steps else "done", 0, len(steps))
-        if workers > 1:
-            from concurrent.futures import ThreadPoolExecutor, as_completed
+        if workers > 1 and len(steps) > 1:
+            import multiprocessing
+            from concurrent.futures import ProcessPoolExecutor, as_completed
 
-            self.prep.word_keys()   # build shared lazy state before the threads start
-            with ThreadPoolExecutor(max_workers=workers) as pool:
-                futs = {pool.submit(work, f): f for f in steps}
-                for fut in as_completed(futs):
-                    results.update(fut.result())
-                    done += 1
-                    if progress:
-                        progress(futs[fut], done, len(steps))
+            self.prep.word_keys()   # shared lazy state, built once before the fork
+            _FORKED["job"] = (self, fams, scope)
+            try:
+                with ProcessPoolExecutor(max_workers=workers,
+                                         mp_context=multiprocessing.get_context("fork")) as pool:
+                    futs = {pool.submit(_family_work, f): f for f in steps}
+                    for fut in as_completed(futs):
+                        results.update(fut.result())
+                        done += 1
+                        if progress:
+                            progress(futs[fut], done, len(steps))
+            finally:
+                _FORKED.clear()
         else:
             for fam in steps:
                 if progress:
                     progress(fam, done, len(steps))
-                results.update(work(fam))
+                results.update(self.grade_family(fam, fams[fam], scope))
                 done += 1
         if progress:
             progress("done", len(steps), len(steps))
         return [results[k.text] for k in selection.kinds]
+
+    def grade_family(self, fam, kinds, scope) -> dict:
+        out: dict[str, KindResult] = {}
+        if fam == "rules":
+            self.grade_rules(kinds, scope, out)
+        elif fam == "af":
+            self.grade_af(kinds, scope, out)
+        elif fam == "sof":
+            self.grade_sof(kinds, out)
+        else:
+            self.grade_drf(kinds, out)
+        return out
 
     # ---- per-instance verdicts (audits, differential tests) ------------------------
     def instance_verdicts(self, instances):
