@@ -33,11 +33,9 @@ def fmt_time(seconds: float) -> str:
 
 
 def fmt_clock(hz) -> str:
-    hz = float(hz)
-    for unit, scale in (("GHz", 1e9), ("MHz", 1e6), ("kHz", 1e3)):
-        if hz >= scale:
-            return f"{hz / scale:g} {unit}"
-    return f"{hz:g} Hz"
+    from ..report.compare import format_frequency
+
+    return format_frequency(hz)
 
 
 def memory_line(mem) -> str:
