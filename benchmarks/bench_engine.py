@@ -54,7 +54,10 @@ SCALING_WORDS = (64, 256, 1024, 4096, 16384)
 
 
 def _peak_rss_mb() -> float:
-    return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024   # Linux: KiB
+    """Peak RSS of this process or of any worker it forked (the larger; Linux: KiB)."""
+    own = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
+    kids = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss
+    return max(own, kids) / 1024
 
 
 def measure_engine(spec: dict) -> dict:
