@@ -88,7 +88,3 @@ def atomic_write(path: str | Path, data: bytes | str, force: bool = False) -> No
     from ..files import write_file
 
     write_file(path, data, force=force)
-
-
-def stdout_is_terminal() -> bool:
-    return sys.stdout.isatty()
