@@ -190,3 +190,25 @@ def test_forked_workers_give_the_same_counts_as_one_process():
     two = Engine(t, mem).grade(sel, scope, workers=2)
     assert [(r.kind.text, r.instances, r.detected, r.complete_by, r.first_by, r.missed_structures) for r in one] == \
            [(r.kind.text, r.instances, r.detected, r.complete_by, r.first_by, r.missed_structures) for r in two]
+
+
+@pytest.mark.parametrize("pairs", ["all", "neighbours", "word", "sample:40:3"])
+def test_named_missed_instances_are_really_missed(pairs):
+    # every instance the grader names as undetected is undetected by the literal reference
+    from marchkit.engine.reference import reference_verdicts
+
+    t = find_in_library("March C-")
+    mem = make_memory(6, 2, order="gray", backgrounds="solid,checkerboard")
+    res = grade(t, mem, "all", pairs, examples=3)
+    named = [inst for r in res.kinds for inst in r.missed_examples]
+    assert named and all(len(r.missed_examples) <= 3 for r in res.kinds)
+    for r in res.kinds:
+        if r.detected < r.instances:
+            assert r.missed_examples, r.kind.text   # every kind with misses names at least one
+    verdicts = reference_verdicts(t, mem, named)
+    assert not any(d for d, _ in verdicts)
+
+
+def test_grade_names_missed_instances_in_the_terminal(cli):
+    code, out, err = cli("grade", "March C-", "--words", "8", "--faults", "WDF", "--missed", "1")
+    assert code == 0 and "some undetected instances" in out and "<0w0/1/-> v=w" in out

@@ -20,6 +20,8 @@ def register(sub):
     g = p.add_argument_group("output")
     g.add_argument("--json", action="store_true", help="print the result as JSON")
     g.add_argument("--primitives", action="store_true", help="also list every static fault primitive")
+    g.add_argument("--missed", type=int, default=0, metavar="N",
+                   help="name up to N undetected instances of each fault kind (cells as wWORD or wWORD.bBIT)")
     g.add_argument("--report", metavar="FILE.html", help="write a self-contained HTML report")
     g.add_argument("--force", action="store_true", help="replace an existing report file")
     p.set_defaults(func=run)
@@ -87,13 +89,19 @@ def run(args) -> int:
     prog, cb = make_progress(sys.stderr.isatty() and not args.json)
     if prog:
         with prog:
-            res = grade(test, mem, args.faults, args.pairs, retention_from_args(args), args.engine, cb)
+            res = grade(test, mem, args.faults, args.pairs, retention_from_args(args), args.engine, cb,
+                        examples=args.missed)
     else:
-        res = grade(test, mem, args.faults, args.pairs, retention_from_args(args), args.engine)
+        res = grade(test, mem, args.faults, args.pairs, retention_from_args(args), args.engine,
+                    examples=args.missed)
     if args.report:
         from ..report import write_html_report
 
         write_html_report(res, args.report, force=args.force)
+    if args.missed < 0:
+        from ..errors import InputError
+
+        raise InputError("--missed takes a number of instances, 0 or more")
     if args.json:
         print(json.dumps(res.to_json(), indent=2, ensure_ascii=False))
         return 0
@@ -139,7 +147,15 @@ def show_result(res, con, primitives=False) -> None:
         for p in res.primitives:
             pt.add_row(p.fault, p.cls, f"{p.instances:,}", f"{p.detected:,}", p.reason)
         con.print(pt)
-    runs = len(res.memory.backgrounds) if res.memory.backgrounds else 1
+    examples = res.missed_examples()
+    if examples:
+        con.print("some undetected instances (an engineer's starting point for diagnosis):")
+        mt = Table(show_edge=False, pad_edge=False)
+        mt.add_column("class", style="bold")
+        mt.add_column("instance")
+        for cls, text in examples:
+            mt.add_row(cls, text)
+        con.print(mt)
     delays = len(t.delays)
     con.print(
         f"cost    {t.ops_per_cell} ops per address per run · {res.ops:,} operations · {res.cycles:,} cycles"

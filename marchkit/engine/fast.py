@@ -257,6 +257,7 @@ class KindResult:
     complete_by: int | None = None          # element index by which all detected ones are
     first_by: int | None = None             # earliest element where one is first detected
     missed_structures: set = field(default_factory=set)   # e.g. {"aggressor first"}
+    missed_examples: list = field(default_factory=list)   # a few undetected Instances
 
     def merge_element(self, e):
         """Note that some detected instances are first detected in element ``e``."""
@@ -304,8 +305,14 @@ def _bits_of(key, R):
 class Engine:
     """Grades a selection of fault kinds on one (test, memory)."""
 
-    def __init__(self, test, mem, sched=None):
+    def __init__(self, test, mem, sched=None, examples: int = 0):
         self.prep = Prepared(test, mem, sched)
+        self.examples = examples      # how many undetected instances to name per kind
+
+    def _take(self, res, instances):
+        room = self.examples - len(res.missed_examples)
+        if room > 0:
+            res.missed_examples.extend(instances[:room])
 
     # ---- rules family ------------------------------------------------------------
     def _rules_tables(self, kinds):
@@ -371,10 +378,50 @@ class Engine:
                 res.detected += int(counts[det[j]].sum())
                 if (counts[~det[j]] > 0).any():
                     res.missed_structures.add(STRUCTURES[s])
+                    if self.examples:
+                        for ka, kv in zip(*np.nonzero((counts > 0) & ~det[j])):
+                            self._take(res, [Instance(kind, c) for c in
+                                             self._cells_with_key(s, int(ka), int(kv), pairs, self.examples)])
                 for e in np.unique(evt[j][(counts > 0) & det[j]]):
                     res.merge_element(prep.sched.segments[events[e][0]].element)
         self._rules_cache = (kinds, tables)
         return results
+
+    def _cells_with_key(self, s, ka, kv, pairs, limit):
+        """Up to ``limit`` cell tuples whose key is (structure s, ka, kv)."""
+        prep = self.prep
+        ck = prep.cell_key
+        if s == SINGLE:
+            return [(int(c),) for c in np.nonzero(ck == kv)[0][:limit]]
+        if pairs is not None:
+            a, v = pairs
+            m = (_pair_structure(prep, a, v) == s) & (ck[a] == ka) & (ck[v] == kv)
+            idx = np.nonzero(m)[0][:limit]
+            return [(int(a[i]), int(v[i])) for i in idx]
+        B = prep.B
+        cells = np.arange(prep.n * B)
+        crank = prep.rank[cells // B]
+        A = cells[ck == ka]
+        V = cells[ck == kv]
+        out = []
+        if s == SAME:
+            for c in A[:4 * limit + 64]:
+                w = c // B
+                for d in range(w * B, w * B + B):
+                    if d != c and ck[d] == kv:
+                        out.append((int(c), int(d)))
+                        if len(out) >= limit:
+                            return out
+            return out
+        A = A[np.argsort(crank[A], kind="stable")]
+        V = V[np.argsort(crank[V], kind="stable")]
+        if s == AFIRST:      # the aggressor's word earlier in ⇑ than the victim's
+            a0 = A[0]
+            later = V[crank[V] > crank[a0]]
+            return [(int(a0), int(v)) for v in later[:limit]]
+        v0 = V[0]
+        later = A[crank[A] > crank[v0]]
+        return [(int(a), int(v0)) for a in later[:limit]]
 
     # ---- AF -------------------------------------------------------------------------
     def _projected_ctx(self, words):
@@ -406,6 +453,9 @@ class Engine:
                         res.merge_element(prep.sched.segments[ev.seg].element)
                     else:
                         res.missed_structures.add("single")
+                        if self.examples:
+                            ws = np.nonzero(wk == u)[0][:self.examples]
+                            self._take(res, [Instance(kind, (int(w),)) for w in ws])
                 continue
             if pairs is None:
                 H = np.zeros((prep.n, U), dtype=np.float64)
@@ -423,7 +473,12 @@ class Engine:
             for st, c in cnt.items():
                 for ua, ub in zip(*np.nonzero(c)):
                     n_ = int(c[ua, ub])
-                    wa, wb = self._af_pair_rep(ua, ub, st)
+                    if pairs is None:
+                        wa, wb = self._af_pair_rep(ua, ub, st)
+                    else:
+                        a, b = pairs
+                        i = np.nonzero((wk[a] == ua) & (wk[b] == ub) & ((prep.rank[a] < prep.rank[b]) == (st == AFIRST)))[0][0]
+                        wa, wb = int(a[i]), int(b[i])
                     det, ev = self._af_verdict(kind, wa, wb)
                     res.instances += n_
                     if det:
@@ -431,6 +486,7 @@ class Engine:
                         res.merge_element(prep.sched.segments[ev.seg].element)
                     else:
                         res.missed_structures.add("a first" if st == AFIRST else "b first")
+                        self._take(res, [Instance(kind, (wa, wb))])
         return results
 
     def _af_pair_rep(self, ua, ub, st):
@@ -491,6 +547,7 @@ class Engine:
                     res.merge_element(prep.sched.segments[ev.seg].element)
                 else:
                     res.missed_structures.add("single")
+                    self._take(res, [Instance(kind, (int(cells[i]),))])
         return results
 
     # ---- DRF ------------------------------------------------------------------------
@@ -545,6 +602,9 @@ class Engine:
             res.detected += int(det.sum())
             if not det.all():
                 res.missed_structures.add("single")
+                if self.examples:
+                    miss = np.nonzero(~det.ravel())[0][:self.examples]
+                    self._take(res, [Instance(kind, (int(c),)) for c in miss])
             for code in np.unique(canon[det]):
                 res.merge_element(prep.sched.segments[int(code) // maxk].element)
         return results

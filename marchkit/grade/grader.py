@@ -57,6 +57,10 @@ class GradeResult:
     elapsed: float = 0.0
     empty_classes: list = field(default_factory=list)
 
+    def missed_examples(self) -> list:
+        """(class, instance text) of the undetected instances named while grading."""
+        return [(r.kind.cls, inst.text(self.memory)) for r in self.kinds for inst in r.missed_examples]
+
     def to_json(self) -> dict:
         from ..notation import format_notation
 
@@ -89,7 +93,7 @@ def _structure(inst, mem, rank) -> str:
     return "aggressor first" if rank[wa] < rank[wv] else "victim first"
 
 
-def _reference_kinds(test, mem, selection, scope, sched, progress=None):
+def _reference_kinds(test, mem, selection, scope, sched, progress=None, examples=0):
     from ..engine.fast import KindResult
     from ..engine.reference import reference_verdicts
     from ..faults import enumerate_instances
@@ -111,26 +115,33 @@ def _reference_kinds(test, mem, selection, scope, sched, progress=None):
                 res.merge_element(where.element)
             else:
                 res.missed_structures.add(_structure(inst, mem, rank))
+                if len(res.missed_examples) < examples:
+                    res.missed_examples.append(inst)
         out.append(res)
     if progress:
         progress("done", len(kinds), len(kinds))
     return out
 
 
-def grade_kinds(test, mem, selection, scope, engine="fast", sched=None, progress=None):
-    """Per-kind results (``KindResult``) of ``test`` on ``mem``."""
+def grade_kinds(test, mem, selection, scope, engine="fast", sched=None, progress=None, examples=0):
+    """Per-kind results (``KindResult``) of ``test`` on ``mem``; ``examples`` undetected
+    instances are named per kind (``KindResult.missed_examples``)."""
     from ..model import schedule
 
     sched = sched or schedule(test, mem)
     if engine == "reference":
-        return _reference_kinds(test, mem, selection, scope, sched, progress)
+        return _reference_kinds(test, mem, selection, scope, sched, progress, examples)
     from ..engine.fast import Engine
 
-    return Engine(test, mem, sched).grade(selection, scope, progress)
+    return Engine(test, mem, sched, examples=examples).grade(selection, scope, progress)
 
 
-def grade(test, mem, faults="static", pairs="neighbours", retention=None, engine="fast", progress=None) -> GradeResult:
-    """Grade ``test`` on ``mem`` against a fault selection (text or FaultSelection)."""
+def grade(test, mem, faults="static", pairs="neighbours", retention=None, engine="fast", progress=None,
+          examples: int = 0) -> GradeResult:
+    """Grade ``test`` on ``mem`` against a fault selection (text or FaultSelection).
+
+    ``examples`` > 0 names that many undetected instances per fault kind
+    (``GradeResult.missed_examples()``)."""
     from ..faults import DEFAULT_RETENTION, parse_pairs, select_faults
     from ..model import schedule
     from ..notation import ensure_consistent
@@ -140,7 +151,7 @@ def grade(test, mem, faults="static", pairs="neighbours", retention=None, engine
     scope = parse_pairs(pairs) if isinstance(pairs, str) else pairs
     sched = schedule(test, mem)
     t0 = time.perf_counter()
-    kinds = grade_kinds(test, mem, selection, scope, engine, sched, progress)
+    kinds = grade_kinds(test, mem, selection, scope, engine, sched, progress, examples)
     elapsed = time.perf_counter() - t0
     by_class: dict[str, list] = {}
     for r in kinds:
