@@ -40,6 +40,8 @@ td.num, th.num { text-align: right; font-variant-numeric: tabular-nums; white-sp
 tr.short td:first-child { box-shadow: inset 4px 0 0 var(--miss); }
 .meter { display: inline-block; width: 90px; height: 10px; background: #e6e8eb; vertical-align: middle; margin-right: 6px; }
 .meter span { display: block; height: 100%%; background: var(--accent); }
+td:has(> .meter) { white-space: nowrap; }
+.pct { white-space: nowrap; }
 .tag { display: inline-block; padding: 0 6px; border: 1px solid var(--miss); color: var(--miss); border-radius: 3px; font-size: 12px; font-weight: 600; }
 .tag.full { border-color: var(--accent); color: var(--accent); }
 ul.missed { padding-left: 20px; }
@@ -57,7 +59,7 @@ def _e(x) -> str:
 
 def _pct(cov: float, detected: int | None = None, instances: int | None = None) -> str:
     """Coverage in % with two decimals; a partial coverage never shows as 100 % or 0 %."""
-    return percent_text(cov, 2, detected, instances).replace(".00", "") + " %"
+    return '<span class="pct">' + percent_text(cov, 2, detected, instances).replace(".00", "") + "&nbsp;%</span>"
 
 
 def _meter(cov: float) -> str:
@@ -254,6 +256,9 @@ def html_report(result) -> str:
                 a("<br>primitives: " + ", ".join(
                     f"<code>{_e(p.fault)}</code>" + ("" if p.detected == 0 else f" ({p.instances - p.detected:,} of {p.instances:,})")
                     for p in ps))
+            examples = [txt for cls, txt in result.missed_examples() if cls == c.cls][:6]
+            if examples:
+                a("<br>for example: " + ", ".join(f"<code>{_e(x)}</code>" for x in examples))
             a("</li>")
         a("</ul>")
 
