@@ -186,3 +186,14 @@ def test_check_random_files_never_crashes(cli, tmp_path_factory, data):
     f.write_bytes(data)
     code, out, err = cli("check", str(f))
     assert code in (0, 2) and "Traceback" not in err
+
+
+def test_faults_lists_the_catalogue_with_counts(cli):
+    code, out, err = cli("faults", "static", "--words", "16", "--pairs", "all", "--json")
+    rows = json.loads(out)
+    assert code == 0 and len(rows) == 48   # van de Goor & Al-Ars, VTS 2000: 12 + 36
+    assert sum(r["instances"] for r in rows) == 12 * 16 + 36 * 16 * 15
+    code, out, err = cli("faults", "CFst")
+    assert code == 0 and "while the aggressor holds 0, the victim cannot stay 0: it becomes 1" in out
+    code, out, err = cli("faults", "bogus")
+    assert code == 2 and "unknown fault selection" in err
