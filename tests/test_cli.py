@@ -197,3 +197,14 @@ def test_faults_lists_the_catalogue_with_counts(cli):
     assert code == 0 and "while the aggressor holds 0, the victim cannot stay 0: it becomes 1" in out
     code, out, err = cli("faults", "bogus")
     assert code == 2 and "unknown fault selection" in err
+
+
+def test_the_shipped_examples_work(cli):
+    mem = str(ROOT / "examples" / "kestrel_l1_sram.toml")
+    code, out, err = cli("check", str(ROOT / "examples" / "ours.march"), "--strict")
+    assert code == 0, err
+    code, out, err = cli("grade", f"{ROOT / 'examples' / 'ours.march'}:Kestrel quick", "--memory", mem,
+                         "--faults", "SAF,DRF", "--retention", "5ms", "--json")
+    assert code == 0, err
+    data = json.loads(out)
+    assert data["memory"]["words"] == 1024 and data["memory"]["backgrounds"] == ["solid", "checkerboard"]
