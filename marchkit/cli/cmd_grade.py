@@ -128,15 +128,20 @@ def show_result(res, con, primitives=False) -> None:
     table.add_column("first found in", no_wrap=True)
     table.add_column("all found by", no_wrap=True)
     table.add_column("why some are missed")
+    from ..report.compare import percent_text
+
+    def pct(cov, d, n):   # a partial coverage never reads 100 % or 0 %
+        return percent_text(cov, 2, d, n) + "%"
+
     for c in res.classes:
-        cov = f"{100 * c.coverage:.2f}%"
+        cov = pct(c.coverage, c.detected, c.instances)
         style = "" if c.detected == c.instances else ("red" if c.detected == 0 else "yellow")
         table.add_row(c.cls, f"{c.instances:,}", f"{c.detected:,}", f"[{style}]{cov}[/{style}]" if style else cov,
                       element_label(t, c.first_by) if c.detected else "—",
                       element_label(t, c.complete_by) if c.detected else "—", c.reason)
     tot = res.total
     table.add_section()
-    table.add_row("total", f"{tot.instances:,}", f"{tot.detected:,}", f"{100 * tot.coverage:.2f}%", "", "", "")
+    table.add_row("total", f"{tot.instances:,}", f"{tot.detected:,}", pct(tot.coverage, tot.detected, tot.instances), "", "", "")
     con.print(table)
     if res.empty_classes:
         con.print(f"no instances in this pair scope: {', '.join(res.empty_classes)}")
