@@ -153,6 +153,7 @@ def grade(test, mem, faults="static", pairs="neighbours", retention=None, engine
     t0 = time.perf_counter()
     kinds = grade_kinds(test, mem, selection, scope, engine, sched, progress, examples)
     elapsed = time.perf_counter() - t0
+    wbg = any(b.strip().lower() == "word" for b in mem.backgrounds)
     by_class: dict[str, list] = {}
     for r in kinds:
         by_class.setdefault(r.kind.cls, []).append(r)
@@ -167,11 +168,12 @@ def grade(test, mem, faults="static", pairs="neighbours", retention=None, engine
         missed = set().union(*(r.missed_structures for r in rs if r.detected < r.instances)) if d < n else set()
         firsts = [r.first_by for r in rs if r.first_by is not None]
         classes.append(ClassRow(cls, n, d, _cov(d, n), max(complete) if complete else None,
-                                reason_for(cls, missed, partial=d > 0) if d < n else "",
+                                reason_for(cls, missed, partial=d > 0, word_backgrounds=wbg) if d < n else "",
                                 min(firsts) if firsts else None))
     prims = [
         PrimitiveRow(r.kind.text, r.kind.cls, r.instances, r.detected,
-                     reason_for(r.kind.cls, r.missed_structures, partial=r.detected > 0) if r.detected < r.instances else "")
+                     reason_for(r.kind.cls, r.missed_structures, partial=r.detected > 0, word_backgrounds=wbg)
+                     if r.detected < r.instances else "")
         for r in kinds if r.kind.is_primitive and r.instances
     ]
     n = sum(c.instances for c in classes)

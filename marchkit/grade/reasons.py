@@ -33,8 +33,19 @@ WHERE = {
 }
 
 
-def reason_for(cls: str, missed: set, partial: bool = True) -> str:
-    """Why ``cls`` is (partly) missed; ``missed`` names where, shown only when ``partial``."""
+SAME_WORD_WITH_WORD_BACKGROUNDS = ("missed inside a word (writes of a background or its complement "
+                                   "move all bits of the word together)")
+
+
+def reason_for(cls: str, missed: set, partial: bool = True, word_backgrounds: bool = False) -> str:
+    """Why ``cls`` is (partly) missed; ``missed`` names where, shown only when ``partial``.
+    ``word_backgrounds``: the memory already runs the intra-word backgrounds."""
     base = NEEDS.get(cls, "not sensitised and observed by this test")
-    where = [WHERE[m] for m in sorted(missed) if m in WHERE] if partial else []
+    where = []
+    if partial:
+        for m in sorted(missed):
+            if m == "same word" and word_backgrounds:
+                where.append(SAME_WORD_WITH_WORD_BACKGROUNDS)
+            elif m in WHERE:
+                where.append(WHERE[m])
     return base + ("; " + "; ".join(where) if where else "")
