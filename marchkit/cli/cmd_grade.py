@@ -119,7 +119,13 @@ def show_result(res, con, primitives=False) -> None:
     t = res.test
     con.print(f"[bold]{t.display_name}[/bold]  {t.length_text}   {format_notation(t)}")
     con.print(f"memory  {memory_line(res.memory)}")
-    con.print(f"faults  {res.faults_spec}   pairs {res.pairs_spec}   engine {res.engine}")
+    taus = sorted({r.kind.tau for r in res.kinds if r.kind.tau is not None})
+    tau_txt = ""
+    if taus:
+        from ..faults import format_seconds
+
+        tau_txt = "   retention τ " + ", ".join(format_seconds(x) for x in taus)
+    con.print(f"faults  {res.faults_spec}   pairs {res.pairs_spec}{tau_txt}   engine {res.engine}")
     table = Table(show_edge=False, pad_edge=False)
     table.add_column("class", style="bold")
     table.add_column("instances", justify="right")
