@@ -212,3 +212,14 @@ def test_named_missed_instances_are_really_missed(pairs):
 def test_grade_names_missed_instances_in_the_terminal(cli):
     code, out, err = cli("grade", "March C-", "--words", "8", "--faults", "WDF", "--missed", "1")
     assert code == 0 and "some undetected instances" in out and "<0w0/1/-> v=w" in out
+
+
+def test_too_many_neighbour_pairs_is_refused_clearly():
+    from marchkit.errors import EngineLimitError
+    from marchkit.faults import cell_pairs, parse_pairs, word_pairs
+
+    mem = make_memory(1 << 23)
+    for fn in (cell_pairs, word_pairs):
+        with pytest.raises(EngineLimitError, match="neighbour pairs") as e:
+            fn(mem, parse_pairs("neighbours"))
+        assert e.value.exit_code == 2

@@ -25,6 +25,7 @@ from .primitives import (AF, CFID, CFIN, CFST, CLASSIC_CLASSES, SAF, SINGLE_CLAS
                          STATIC, STATIC_CLASSES, TF, FaultKind, drf_kinds, primitive)
 
 DEFAULT_RETENTION = (Fraction(1, 1000),)
+MAX_EXPLICIT_PAIRS = 48_000_000     # directed pairs held as arrays (~3 GB at peak while grading)
 
 
 def format_seconds(s: Fraction) -> str:
@@ -167,6 +168,17 @@ def _sample_pairs(n: int, k: int, seed: int) -> tuple[np.ndarray, np.ndarray]:
     return a, v
 
 
+def _check_pair_budget(mem) -> None:
+    n = mem.cells
+    if n * mem.neighbours > MAX_EXPLICIT_PAIRS:
+        from ..errors import EngineLimitError
+
+        raise EngineLimitError(
+            f"{n:,} cells have about {n * mem.neighbours:,} neighbour pairs, more than marchkit "
+            f"lists at once ({MAX_EXPLICIT_PAIRS:,}); grade a sub-array, or use --pairs sample:K or all"
+        )
+
+
 def cell_pairs(mem, scope: PairScope) -> tuple[np.ndarray, np.ndarray] | None:
     """Explicit (aggressor cell, victim cell) arrays, or None for all ordered pairs."""
     if scope.is_all:
@@ -177,6 +189,7 @@ def cell_pairs(mem, scope: PairScope) -> tuple[np.ndarray, np.ndarray] | None:
     a_parts, v_parts = [], []
     for part in scope.parts:
         if part[0] == "neighbours":
+            _check_pair_budget(mem)
             a, v = neighbour_edges(mem)
         elif part[0] == "word":
             bb = np.arange(bits)
@@ -208,6 +221,7 @@ def word_pairs(mem, scope: PairScope) -> tuple[np.ndarray, np.ndarray] | None:
         if part[0] == "neighbours":
             from ..model import neighbour_edges
 
+            _check_pair_budget(mem)
             ca, cv = neighbour_edges(mem)
             a, b = ca // mem.bits, cv // mem.bits
             keep = a != b
