@@ -63,9 +63,14 @@ def _pos(meta_or_tok, filename: str) -> SourcePos | None:
     return SourcePos(line, col, filename, end if end_line == line else None)
 
 
+_ESCAPES = {"n": "\n", "t": "\t", "r": "\r"}
+
+
 def _unquote(s: str) -> str:
+    """A quoted string's text: ``\\n``, ``\\t``, ``\\r`` are control characters, any other
+    ``\\x`` is ``x``."""
     body = s[1:-1]
-    return re.sub(r"\\(.)", r"\1", body)
+    return re.sub(r"\\(.)", lambda m: _ESCAPES.get(m.group(1), m.group(1)), body)
 
 
 def _describe(term: str) -> str:

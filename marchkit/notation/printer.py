@@ -41,7 +41,8 @@ def format_notation(test: MarchTest, ascii: bool = False) -> str:
 
 
 def _quote(s: str) -> str:
-    return '"' + s.replace("\\", "\\\\").replace('"', '\\"') + '"'
+    s = s.replace("\\", "\\\\").replace('"', '\\"')
+    return '"' + s.replace("\n", "\\n").replace("\t", "\\t").replace("\r", "\\r") + '"'
 
 
 def format_test_block(test: MarchTest, ascii: bool = False) -> str:
