@@ -208,3 +208,12 @@ def test_the_shipped_examples_work(cli):
     assert code == 0, err
     data = json.loads(out)
     assert data["memory"]["words"] == 1024 and data["memory"]["backgrounds"] == ["solid", "checkerboard"]
+
+
+def test_check_memory_files(cli, tmp_path):
+    code, out, err = cli("check", str(ROOT / "examples" / "kestrel_l1_sram.toml"))
+    assert code == 0 and "1024 × 16 bits, mux 4" in out
+    bad = tmp_path / "bad.toml"
+    bad.write_text("[memory]\nwords = 100\nmux = 3\n", encoding="utf-8")
+    code, out, err = cli("check", str(bad))
+    assert code == 2 and f"{bad}:3:1: error: column mux 3 does not divide 100 words" in err

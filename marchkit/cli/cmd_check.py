@@ -6,9 +6,10 @@ import sys
 
 
 def register(sub):
-    p = sub.add_parser("check", help="validate march test files",
+    p = sub.add_parser("check", help="validate march test files and memory files",
                        description="Check files of march tests (or notations starting with '{'): syntax, "
-                       "and whether a fault-free memory passes each test.")
+                       "and whether a fault-free memory passes each test.  A .toml file is checked as a "
+                       "memory description.")
     p.add_argument("files", nargs="+", metavar="FILE")
     p.add_argument("--strict", action="store_true", help="treat warnings as errors")
     p.set_defaults(func=run)
@@ -20,6 +21,9 @@ def run(args) -> int:
 
     status = 0
     for spec in args.files:
+        if spec.lower().endswith(".toml"):
+            status = max(status, _check_memory(spec))
+            continue
         try:
             tests = [parse_notation(spec, "<argument>")] if spec.lstrip().startswith("{") else parse_file(spec)
         except PositionedError as e:
@@ -47,3 +51,17 @@ def run(args) -> int:
         label = "<argument>" if spec.lstrip().startswith("{") else spec
         print(f"{label}: {len(tests)} test{'s' if len(tests) != 1 else ''}, {n_err} error{'s' if n_err != 1 else ''}, {n_warn} warning{'s' if n_warn != 1 else ''}")
     return status
+
+
+def _check_memory(path: str) -> int:
+    from ..errors import MarchkitError
+    from ..model import load_memory_file
+    from .cmd_grade import memory_line
+
+    try:
+        mem = load_memory_file(path)
+    except MarchkitError as e:
+        sys.stderr.write(e.render() + "\n")
+        return 2
+    print(f"{path}: memory {memory_line(mem)}")
+    return 0
