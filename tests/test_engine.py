@@ -450,6 +450,17 @@ PAIR_MEMORIES = [
 ]
 
 
+def _to_raw_keys(prep, counts):
+    """The engine numbers the background patterns present; map its counts[s, ka, kv] to
+    the patterns' bits packed as Σ bit_r << r, as _explicit_counts writes them."""
+    raw = (prep.key_bits.astype(np.int64) << np.arange(prep.R)).sum(axis=1)
+    out = np.zeros((4, 1 << prep.R, 1 << prep.R), dtype=np.int64)
+    for ka in range(prep.K):
+        for kv in range(prep.K):
+            out[:, raw[ka], raw[kv]] = counts[:, ka, kv]
+    return out
+
+
 def _explicit_counts(mem):
     """counts[structure, key a, key v] by walking every ordered pair of distinct cells
     (structure 1 aggressor word first, 2 victim word first, 3 same word)."""
@@ -472,11 +483,11 @@ def _explicit_counts(mem):
 def test_pair_counts_all_matches_enumeration(kw):
     mem = make_memory(**kw)
     prep = Prepared(find_in_library("March C-"), mem)
-    closed = _pair_counts_all(prep)
+    closed = _to_raw_keys(prep, _pair_counts_all(prep))
     want = _explicit_counts(mem)
     assert np.array_equal(closed, want)
     a, v = zip(*[(i, j) for i in range(mem.cells) for j in range(mem.cells) if i != j])
-    assert np.array_equal(_pair_counts_explicit(prep, np.array(a), np.array(v)), want)
+    assert np.array_equal(_to_raw_keys(prep, _pair_counts_explicit(prep, np.array(a), np.array(v))), want)
     assert int(closed.sum()) == mem.cells * (mem.cells - 1)   # ordered pairs: n(n-1)
 
 

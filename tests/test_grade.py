@@ -223,3 +223,13 @@ def test_too_many_neighbour_pairs_is_refused_clearly():
         with pytest.raises(EngineLimitError, match="neighbour pairs") as e:
             fn(mem, parse_pairs("neighbours"))
         assert e.value.exit_code == 2
+
+
+def test_many_background_runs_stay_exact():
+    # 13 background runs: the per-cell background patterns are numbered, not packed into 2^R
+    bg = ",".join(["solid", "checkerboard", "rows", "columns"] + [hex(i) for i in range(1, 10)])
+    mem = make_memory(5, 4, backgrounds=bg)
+    for name in ("March C-", "March C+"):
+        a = grade(find_in_library(name), mem, "static,SOF,AF", "all")
+        b = grade(find_in_library(name), mem, "static,SOF,AF", "all", engine="reference")
+        assert a.classes == b.classes and a.primitives == b.primitives

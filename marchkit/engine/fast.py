@@ -53,8 +53,18 @@ class Prepared:
         self.scenarios = list(itertools.product((True, False), repeat=len(self.any_elems)))
         # key of each cell: its background bit in every run
         w = np.arange(self.R, dtype=np.int64)
-        self.cell_key = (self.bg.astype(np.int64) << w[:, None, None]).sum(axis=0).ravel()  # (n*B,)
-        self.K = 1 << self.R
+        # key of each cell: the index of its background bits (one per run) among the distinct
+        # bit patterns present; key_bits[k] gives them back
+        bits = self.bg.reshape(self.R, -1).T                       # (n*B, R)
+        if self.R <= 62:
+            raw = (bits.astype(np.int64) << w[None, :]).sum(axis=1)
+            uniq, inv = np.unique(raw, return_inverse=True)
+            self.key_bits = ((uniq[:, None] >> w[None, :]) & 1).astype(np.int8)
+        else:
+            uniq_rows, inv = np.unique(bits, axis=0, return_inverse=True)
+            self.key_bits = uniq_rows.astype(np.int8)
+        self.cell_key = inv.ravel().astype(np.int64)               # (n*B,)
+        self.K = self.key_bits.shape[0]
         self._word_key = None
 
     def seg_up(self, si, any_up) -> bool:
@@ -298,10 +308,6 @@ def _pair_counts_explicit(prep, a, v):
     return np.bincount(key, minlength=4 * K * K).reshape(4, K, K)
 
 
-def _bits_of(key, R):
-    return ((np.asarray(key)[:, None] >> np.arange(R)) & 1).astype(np.int8)
-
-
 class Engine:
     """Grades a selection of fault kinds on one (test, memory)."""
 
@@ -318,7 +324,7 @@ class Engine:
     def _rules_tables(self, kinds):
         """verdict tables: {structure: (det[kind, ka, kv], event[kind, ka, kv], events)}."""
         prep = self.prep
-        K, R = prep.K, prep.R
+        K = prep.K
         params = _rule_params(kinds)
         tables = {}
         for structure in (SINGLE, AFIRST, VFIRST, SAME):
@@ -339,7 +345,7 @@ class Engine:
             det = np.zeros((len(kinds), K, K), dtype=bool)
             evt = np.full((len(kinds), K, K), -1, dtype=np.int64)
             if kk.size:
-                d, e, events = rules_batch(prep, structure, kk, params, _bits_of(ka, R), _bits_of(kv, R))
+                d, e, events = rules_batch(prep, structure, kk, params, prep.key_bits[ka], prep.key_bits[kv])
                 det[kk, ka, kv] = d
                 evt[kk, ka, kv] = e
             else:
@@ -384,7 +390,6 @@ class Engine:
                                              self._cells_with_key(s, int(ka), int(kv), pairs, self.examples)])
                 for e in np.unique(evt[j][(counts > 0) & det[j]]):
                     res.merge_element(prep.sched.segments[events[e][0]].element)
-        self._rules_cache = (kinds, tables)
         return results
 
     def _cells_with_key(self, s, ka, kv, pairs, limit):
@@ -514,10 +519,16 @@ class Engine:
         pred = prep.order[np.maximum(r - 1, 0)]
         succ = prep.order[np.minimum(r + 1, n - 1)]
         flags = (r == 0).astype(np.int64) | (r == 1) << 1 | (r == n - 2) << 2 | (r == n - 1) << 3
-        key = flags
-        for ctxw in (np.full_like(w, first), pred, w, succ, np.full_like(w, last)):
-            for run in range(R):
-                key = key << 1 | prep.bg[run, ctxw, b].astype(np.int64)
+        cols = [prep.bg[run, ctxw, b].astype(np.int64)
+                for ctxw in (np.full_like(w, first), pred, w, succ, np.full_like(w, last))
+                for run in range(R)]
+        if len(cols) <= 58:        # pack into one int64
+            key = flags
+            for c in cols:
+                key = key << 1 | c
+        else:                      # very many background runs: number the distinct rows
+            _, key = np.unique(np.stack([flags] + cols, axis=1), axis=0, return_inverse=True)
+            key = key.ravel().astype(np.int64)
         return key, w, pred, succ
 
     def _sof_verdict(self, kind, cell):
