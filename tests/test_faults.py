@@ -228,7 +228,9 @@ def test_select_sets():
     assert _texts("retention") == ["DRF0(τ=1ms)", "DRF1(τ=1ms)"]
     assert DEFAULT_RETENTION == (Fraction(1, 1000),)
     everything = select_faults("all")
-    assert len(everything.kinds) == 48 + 2 + 1 + 4 + 2 + 4 + 2
+    # + the 30 single-cell dynamic primitives (Al-Ars 2005, counted in Di Carlo & Prinetto 2010;
+    # fact sheet)
+    assert len(everything.kinds) == 48 + 2 + 1 + 4 + 2 + 4 + 2 + 30
     assert len(set(_texts("all"))) == len(everything.kinds)
     assert [k.text for k in all_kinds()] == _texts("all")
 
@@ -437,3 +439,30 @@ def test_instance_text():
     assert one[5].text(bit_mem) == "SA0 v=w5"
     af = list(enumerate_instances(AF[1], bit_mem, parse_pairs("all")))
     assert af[0].text(bit_mem) == "AF:alias a=0 b=1"
+
+
+def test_thirty_single_cell_dynamic_primitives():
+    # Al-Ars (2005), via Di Carlo & Prinetto, "Models in Memory Testing" (2010): 30 single-cell
+    # two-operation primitives.  Derived count: a state x (2) and two operations from {w0, w1, r}
+    # (3 × 3): 6 sequences end in a read, each with an RDF-, DRDF- or IRF-like effect (18);
+    # 12 end in a write, each leaving the other value (12).
+    from marchkit.faults import DYNAMIC, DYNAMIC_CLASSES
+
+    assert len(DYNAMIC) == 30 and len({k.text for k in DYNAMIC}) == 30
+    counts = {c: sum(k.cls == c for k in DYNAMIC) for c in DYNAMIC_CLASSES}
+    assert counts == {"dRDF": 6, "dDRDF": 6, "dIRF": 6, "dTF": 6, "dWDF": 6}
+    for k in DYNAMIC:
+        assert parse_rule(k.text).text == k.text
+    assert primitive("<0w1r1/0/0>").cls == "dRDF"
+    assert primitive("<1r1r1/0/1>").cls == "dDRDF"
+    assert primitive("<0w0w1/0/->").cls == "dTF"
+    for bad in ("<0w1r0/0/0>", "<0r1r1/0/0>", "<0w1r1/1/1>", "<0w1w1/1/->", "<0w1r1/0/->"):
+        with pytest.raises(FaultSpecError):
+            parse_rule(bad)
+
+
+def test_dynamic_class_names_do_not_shadow_static_ones():
+    assert select_faults("dRDF").classes == ("dRDF",)
+    assert select_faults("DRDF").classes == select_faults("drdf").classes == ("DRDF",)
+    assert select_faults("ddrdf").classes == ("dDRDF",)
+    assert len(select_faults("dynamic").kinds) == 30

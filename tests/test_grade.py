@@ -233,3 +233,20 @@ def test_many_background_runs_stay_exact():
         a = grade(find_in_library(name), mem, "static,SOF,AF", "all")
         b = grade(find_in_library(name), mem, "static,SOF,AF", "all", engine="reference")
         assert a.classes == b.classes and a.primitives == b.primitives
+
+
+def test_dynamic_read_faults_need_back_to_back_operations():
+    # March RAW targets read-after-write dynamic faults (Hamdioui, Al-Ars, van de Goor, VTS 2002;
+    # from memory): its w-then-r pairs catch every dRDF and dIRF; March C- never reads right after
+    # an operation on the same cell in one element... it does: ⇑(r0,w1) has no w→r pair, so it
+    # catches no dRDF (derived from the definitions).
+    mem = make_memory(8)
+    raw = classes(grade(find_in_library("March RAW"), mem, "dRDF,dIRF", "all"))
+    assert raw["dRDF"].coverage == 1.0 and raw["dIRF"].coverage == 1.0
+    cm = classes(grade(find_in_library("March C-"), mem, "dRDF,dIRF", "all"))
+    assert cm["dRDF"].detected == 0 and cm["dIRF"].detected == 0
+    # the pair must be adjacent inside one visit: {⇕(w0); ⇑(w1); ⇑(r1)} puts a whole element
+    # between w1 and r1 of a cell, so <0w1r1/0/0> is missed; ⇑(w1,r1) catches it
+    apart = grade(parse_notation("{⇕(w0); ⇑(w1); ⇑(r1)}"), mem, "<0w1r1/0/0>", "all")
+    together = grade(parse_notation("{⇕(w0); ⇑(w1,r1)}"), mem, "<0w1r1/0/0>", "all")
+    assert apart.total.detected == 0 and together.total.coverage == 1.0

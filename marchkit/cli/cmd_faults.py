@@ -20,6 +20,13 @@ def register(sub):
 def describe(kind) -> str:
     if kind.description:
         return kind.description
+    if kind.family == "rules" and len(kind.rules) == 1 and kind.rules[0].then is not None:
+        r = kind.rules[0]
+        o1, o2 = r.vic, r.then
+        first = f"w{o1.val}" if o1.op == "w" else f"r{o1.pre}"
+        second = f"w{o2.val}" if o2.op == "w" else f"r{o2.pre}"
+        out = f"{first} then at once {second} on the cell holding {o1.pre}: it is left {r.f}"
+        return out + (f" and the read returns {r.r}" if r.r is not None else "")
     if kind.family == "rules" and len(kind.rules) == 1:
         r = kind.rules[0]
         v = r.vic

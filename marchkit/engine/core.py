@@ -16,6 +16,9 @@ Semantics (the standard ones; see DEVELOPERS.md):
 * AF: see :mod:`marchkit.faults.primitives`; a read of several cells returns their AND; a read
   of an address that selects no cell returns a fixed value, the same in every bit, unknown
   which (so detection must hold for both).
+* Dynamic primitives ``<x O1 O2/F/R>``: O1 and O2 are applied back to back to the cell —
+  adjacent operations of one visit of its address in a march element — with the cell holding x
+  before O1; O2 then leaves F (and a read O2 returns R).
 * DRF: when a cell holding the lost value is accessed (read or write of its word) at least τ
   after its last access (or the start), it has flipped before the operation acts.
 """
@@ -94,6 +97,7 @@ class Run:
                 self.dec[b] = [a, b]
         if fam == "sof":
             self.sof = divmod(inst.sites[0], bits)
+        self.prev = None
         if fam == "rules":
             self.apply_states()
 
@@ -125,8 +129,21 @@ class Run:
         if kind == "r":
             out = list(self.vals[w])
         post_v = None
+        prev = self.prev
         for rule in self.kind.rules:
             ca, cv = rule.agg, rule.vic
+            if rule.then is not None:
+                # dynamic: the previous operation of this visit was the first one, on the
+                # cell holding cv.pre, and this operation is the second one
+                t = rule.then
+                if (w != vw or prev is None or prev[0] != cv.op or prev[2] != cv.pre
+                        or (cv.op == "w" and prev[1] != cv.val)
+                        or kind != t.op or pre_v != t.pre or (kind == "w" and data[vb] != t.val)):
+                    continue
+                post_v = rule.f
+                if kind == "r":
+                    out[vb] = rule.r
+                continue
             if ca is None:
                 if cv.op is None or w != vw or cv.op != kind or pre_v != cv.pre:
                     continue
@@ -149,6 +166,8 @@ class Run:
                 post_v = rule.f
                 if kind == "r":
                     out[vb] = rule.r
+        if w == vw:   # what a dynamic primitive's second operation looks back at
+            self.prev = (kind, data[vb] if kind == "w" else None, pre_v)
         if kind == "w":
             self.vals[w] = list(data)
         if post_v is not None:
@@ -210,6 +229,7 @@ class Run:
             bg = ctx.bg[seg.run]
             n1 = ctx.n - 1
             for w in words:
+                self.prev = None          # a new visit: nothing done to this word just before
                 pos = ctx.rank[w] if up else n1 - ctx.rank[w]
                 base = seg.start + pos * seg.per_address
                 bgw = bg[w]

@@ -103,11 +103,16 @@ def _rule_params(kinds):
     S = max(len(k.rules) for k in kinds)
     M = len(kinds)
     P = {name: np.zeros((S, M), dtype=np.int8) for name in
-         ("rt", "a_pre", "a_op", "a_val", "v_pre", "v_op", "v_val", "f", "r")}
+         ("rt", "a_pre", "a_op", "a_val", "v_pre", "v_op", "v_val", "f", "r", "t_pre", "t_op", "t_val")}
     for j, k in enumerate(kinds):
         for s, rule in enumerate(k.rules):
             a, v = rule.agg, rule.vic
-            if a is None:
+            if rule.then is not None:
+                rt = 6
+                P["t_pre"][s, j] = rule.then.pre
+                P["t_op"][s, j] = _OPCODE[rule.then.op]
+                P["t_val"][s, j] = rule.then.val
+            elif a is None:
                 rt = 1 if v.op is None else 2
             elif a.op is not None:
                 rt = 3
@@ -163,6 +168,7 @@ def rules_batch(prep, structure, kind_idx, params, bga, bgv):
     init_v = np.array([0, 1, 0, 1] if two else [0, 1], dtype=np.int8)
     S = params["rt"].shape[0]
     p = {name: arr[:, kind_idx][:, :, None] for name, arr in params.items()}  # (S, M, 1)
+    dynamic = bool((p["rt"] == 6).any())
     detected = np.ones(M, dtype=bool)
     canon_first = np.full(M, -1, dtype=np.int64)
     canon_events = None
@@ -181,6 +187,7 @@ def rules_batch(prep, structure, kind_idx, params, bga, bgv):
         vv = np.broadcast_to(init_v, (M, I)).copy()
         vv = apply_states(va, vv)
         first = np.full((M, I), -1, dtype=np.int64)
+        last_pre_v = vv    # the victim's value before its previous operation in this visit
         for ev, (si, role, k) in enumerate(events):
             seg = prep.sched.segments[si]
             kind = seg.op_kinds[k]
@@ -201,6 +208,17 @@ def rules_batch(prep, structure, kind_idx, params, bga, bgv):
                     if kind == "w":
                         opm = opm & (dv == p["v_val"][s])
                     mv = opm & ((rt == 2) | ((rt == 4) & (pre_a == p["a_pre"][s])))
+                    if dynamic and k > 0:
+                        # the previous operation of this visit (k-1) on the victim is the first
+                        pk = seg.op_kinds[k - 1]
+                        dprev = (bgv[:, seg.run] ^ seg.op_values[k - 1])[:, None]
+                        dm = ((rt == 6) & (p["v_op"][s] == _OPCODE[pk]) & (last_pre_v == p["v_pre"][s])
+                              & (p["t_op"][s] == code) & (pre_v == p["t_pre"][s]))
+                        if pk == "w":
+                            dm = dm & (dprev == p["v_val"][s])
+                        if kind == "w":
+                            dm = dm & (dv == p["t_val"][s])
+                        mv = mv | dm
                     fire = mv
                     if outv is not None:
                         outv = np.where(mv, p["r"][s], outv)
@@ -217,6 +235,8 @@ def rules_batch(prep, structure, kind_idx, params, bga, bgv):
                     va = np.broadcast_to(da, (M, I)).astype(np.int8)
                 if tv:
                     vv = np.broadcast_to(dv, (M, I)).astype(np.int8)
+            if tv:
+                last_pre_v = pre_v
             vv = np.where(fired, fval, vv).astype(np.int8)
             vv = apply_states(va, vv)
             if outv is not None and (si, k) in prep.determined:

@@ -1,7 +1,7 @@
 """Fault selections (``--faults``), pair scopes (``--pairs``) and the instances they give.
 
 Selections: ``static`` (the 48 primitives), ``classic`` (SAF, TF, SOF, AF, CFin, CFid,
-CFst), ``retention`` (DRF), ``all``, any class name (``SAF``, ``CFds``, ``DRF`` …), one kind
+CFst), ``retention`` (DRF), ``dynamic`` (the 30 single-cell two-operation primitives), ``all``, any class name (``SAF``, ``CFds``, ``DRF`` …), one kind
 (``SA0``, ``AF:alias``) or one primitive in ``<S/F/R>`` form — combined as a comma list.
 
 Pair scopes, for the two-cell kinds (cells) and the two-address AF kinds (words):
@@ -21,8 +21,9 @@ from typing import Iterator
 import numpy as np
 
 from ..errors import FaultSpecError
-from .primitives import (AF, CFID, CFIN, CFST, CLASSIC_CLASSES, SAF, SINGLE_CLASSES, SOF,
-                         STATIC, STATIC_CLASSES, TF, FaultKind, drf_kinds, primitive)
+from .primitives import (AF, CFID, CFIN, CFST, CLASSIC_CLASSES, DYNAMIC, DYNAMIC_CLASSES, SAF,
+                         SINGLE_CLASSES, SOF, STATIC, STATIC_CLASSES, TF, FaultKind, drf_kinds,
+                         primitive)
 
 DEFAULT_RETENTION = (Fraction(1, 1000),)
 MAX_EXPLICIT_PAIRS = 48_000_000     # directed pairs held as arrays (~3 GB at peak while grading)
@@ -41,18 +42,26 @@ def format_seconds(s: Fraction) -> str:
 
 def _class_kinds(name: str, retention) -> tuple[FaultKind, ...] | None:
     low = name.lower()
-    classes = {c.lower(): c for c in STATIC_CLASSES + CLASSIC_CLASSES + ("DRF",)}
-    if low not in classes:
-        return None
-    c = classes[low]
+    every = STATIC_CLASSES + CLASSIC_CLASSES + ("DRF",) + DYNAMIC_CLASSES
+    if name in every:              # exact spelling first: dRDF (dynamic) is not DRDF
+        c = name
+    else:                          # then any case, the static and classic names winning
+        classes: dict[str, str] = {}
+        for c in every:
+            classes.setdefault(c.lower(), c)
+        if low not in classes:
+            return None
+        c = classes[low]
     if c in STATIC_CLASSES:
         return tuple(k for k in STATIC if k.cls == c)
+    if c in DYNAMIC_CLASSES:
+        return tuple(k for k in DYNAMIC if k.cls == c)
     return {"SAF": SAF, "TF": TF, "SOF": SOF, "AF": AF, "CFin": CFIN, "CFid": CFID,
             "CFst": CFST, "DRF": drf_kinds(retention)}[c]
 
 
 def all_kinds(retention=DEFAULT_RETENTION) -> tuple[FaultKind, ...]:
-    return STATIC + SAF + SOF + AF + CFIN + CFID + drf_kinds(retention)
+    return STATIC + SAF + SOF + AF + CFIN + CFID + drf_kinds(retention) + DYNAMIC
 
 
 @dataclass(frozen=True)
@@ -80,6 +89,8 @@ def select_faults(spec: str = "static", retention=DEFAULT_RETENTION) -> FaultSel
             got = SAF + TF + SOF + AF + CFIN + CFID + CFST
         elif low == "retention":
             got = drf_kinds(retention)
+        elif low == "dynamic":
+            got = DYNAMIC
         elif low == "all":
             got = all_kinds(retention)
         elif part.startswith("<"):
@@ -92,8 +103,8 @@ def select_faults(spec: str = "static", retention=DEFAULT_RETENTION) -> FaultSel
                     got = (named[low],)
                 else:
                     raise FaultSpecError(
-                        f"unknown fault selection {part!r}; use static, classic, retention, all, "
-                        "a class (" + ", ".join(STATIC_CLASSES + ("SAF", "SOF", "AF", "CFin", "CFid", "DRF")) +
+                        f"unknown fault selection {part!r}; use static, classic, retention, dynamic, all, "
+                        "a class (" + ", ".join(STATIC_CLASSES + ("SAF", "SOF", "AF", "CFin", "CFid", "DRF") + DYNAMIC_CLASSES) +
                         "), a kind such as SA0 or AF:alias, or a primitive such as <0w1/0/->"
                     )
         for k in got:

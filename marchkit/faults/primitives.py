@@ -46,10 +46,14 @@ class Rule:
     f: int
     r: int | None = None
     agg: Cond | None = None
+    then: Cond | None = None     # dynamic primitive: the second of two back-to-back operations
 
     @property
     def text(self) -> str:
         s = self.vic.text if self.agg is None else f"{self.agg.text};{self.vic.text}"
+        if self.then is not None:
+            t = self.then
+            s += f"w{t.val}" if t.op == "w" else f"r{t.pre}"
         return f"<{s}/{self.f}/{'-' if self.r is None else self.r}>"
 
 
@@ -57,9 +61,33 @@ _COND = r"([01])(?:([wr])([01]))?"
 _FP_RE = re.compile(rf"^<(?:{_COND};)?{_COND}/([01])/([01-])>$")
 
 
+_DYN_RE = re.compile(r"^<([01])([wr])([01])([wr])([01])/([01])/([01-])>$")
+
+
+def _parse_dynamic(text: str, m) -> Rule:
+    x, o1, v1, o2, v2, f, r = m.groups()
+    x, v1, v2, f = int(x), int(v1), int(v2), int(f)
+    if o1 == "r" and v1 != x:
+        raise FaultSpecError(f"{text!r}: the first read of a cell holding {x} is r{x}")
+    s = v1 if o1 == "w" else x            # the cell's value after the first operation
+    if o2 == "r" and v2 != s:
+        raise FaultSpecError(f"{text!r}: after {o1}{v1} the cell holds {s}, so the read is r{s}")
+    rr = None if r == "-" else int(r)
+    if (o2 == "r") != (rr is not None):
+        raise FaultSpecError(f"{text!r}: R is a value exactly when the second operation is a read, '-' otherwise")
+    good_f = v2 if o2 == "w" else s
+    if f == good_f and (rr is None or rr == s):
+        raise FaultSpecError(f"{text!r}: F and R are what a fault-free cell gives; that is no fault")
+    return Rule(Cond(x, o1, v1), f, rr, None, Cond(s, o2, v2))
+
+
 def parse_rule(text: str) -> Rule:
-    """``<0w1/0/->`` or ``<1;0w1/0/->`` → :class:`Rule`, checked for sense."""
+    """``<0w1/0/->``, ``<1;0w1/0/->`` or (dynamic) ``<0w1r1/0/0>`` → :class:`Rule`, checked
+    for sense."""
     s = text.strip().replace(" ", "")
+    dm = _DYN_RE.match(s)
+    if dm:
+        return _parse_dynamic(text, dm)
     m = _FP_RE.match(s)
     if not m:
         raise FaultSpecError(f"{text!r} is not a fault primitive such as <0w1/0/-> or <1;0r0/1/1>")
@@ -120,6 +148,13 @@ def _r(text):
 
 def _classify(rule: Rule) -> str:
     v, a = rule.vic, rule.agg
+    if rule.then is not None:
+        t = rule.then
+        if t.op == "w":
+            return "dTF" if t.val != t.pre else "dWDF"
+        if rule.f != t.pre:
+            return "dRDF" if rule.r != t.pre else "dDRDF"
+        return "dIRF"
     if a is None:
         if v.op is None:
             return "SF"
@@ -174,7 +209,30 @@ def _primitive_kind(text: str) -> FaultKind:
 
 
 STATIC = tuple(_primitive_kind(t) for t in _static_texts())
-_BY_TEXT = {k.text: k for k in STATIC}
+
+DYNAMIC_CLASSES = ("dRDF", "dDRDF", "dIRF", "dTF", "dWDF")
+
+
+def _dynamic_texts() -> list[str]:
+    """The 30 single-cell two-operation primitives: a state x, then two operations back to back;
+    a fault on a final read is RDF-, DRDF- or IRF-like, on a final write it leaves the wrong value."""
+    out = []
+    for x in (0, 1):
+        for o1 in ("w0", "w1", "r"):
+            s1 = int(o1[1]) if o1[0] == "w" else x
+            first = o1 if o1[0] == "w" else f"r{x}"
+            for o2 in ("w0", "w1", "r"):
+                if o2 == "r":
+                    seq = f"{x}{first}r{s1}"
+                    out += [f"<{seq}/{1 - s1}/{1 - s1}>", f"<{seq}/{1 - s1}/{s1}>", f"<{seq}/{s1}/{1 - s1}>"]
+                else:
+                    v2 = int(o2[1])
+                    out.append(f"<{x}{first}{o2}/{1 - v2}/->")
+    return out
+
+
+DYNAMIC = tuple(_primitive_kind(t) for t in _dynamic_texts())
+_BY_TEXT = {k.text: k for k in STATIC + DYNAMIC}
 
 
 def primitive(text: str) -> FaultKind:

@@ -22,6 +22,11 @@ NEEDS = {
     "CFin": "needs each aggressor transition then a victim read, both positions",
     "CFid": "needs each aggressor transition, victim in each state, then a victim read",
     "DRF": "needs a read after a pause longer than τ (a delay element) for each value",
+    "dRDF": "needs the primitive's two operations back to back in one element, the second a read",
+    "dDRDF": "needs the two operations back to back, then another read before the cell is rewritten",
+    "dIRF": "needs the primitive's two operations back to back in one element, the second a read",
+    "dTF": "needs the two operations back to back (ending in a transition write), then a read",
+    "dWDF": "needs the two operations back to back (ending in a non-transition write), then a read",
 }
 
 WHERE = {
