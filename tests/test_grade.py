@@ -237,9 +237,9 @@ def test_many_background_runs_stay_exact():
 
 def test_dynamic_read_faults_need_back_to_back_operations():
     # March RAW targets read-after-write dynamic faults (Hamdioui, Al-Ars, van de Goor, VTS 2002;
-    # from memory): its w-then-r pairs catch every dRDF and dIRF; March C- never reads right after
-    # an operation on the same cell in one element... it does: ⇑(r0,w1) has no w→r pair, so it
-    # catches no dRDF (derived from the definitions).
+    # from memory): its w-then-r and r-then-r pairs catch every dRDF and dIRF.  March C-'s
+    # elements are (r,w) pairs with no read second, so it catches none (derived from the
+    # definitions).
     mem = make_memory(8)
     raw = classes(grade(find_in_library("March RAW"), mem, "dRDF,dIRF", "all"))
     assert raw["dRDF"].coverage == 1.0 and raw["dIRF"].coverage == 1.0
