@@ -217,3 +217,10 @@ def test_check_memory_files(cli, tmp_path):
     bad.write_text("[memory]\nwords = 100\nmux = 3\n", encoding="utf-8")
     code, out, err = cli("check", str(bad))
     assert code == 2 and f"{bad}:3:1: error: column mux 3 does not divide 100 words" in err
+
+
+def test_export_command_knows_every_format():
+    from marchkit.cli.cmd_export import FORMAT_HELP
+    from marchkit.export import FORMATS
+
+    assert tuple(FORMAT_HELP) == FORMATS

@@ -4,6 +4,8 @@ from __future__ import annotations
 
 import sys
 
+# the export formats (marchkit.export.FORMATS; kept here so that building the command line
+# does not import the exporters and numpy — a test checks the two agree)
 FORMAT_HELP = {
     "csv": "one header row, then one row per clock cycle",
     "jsonl": "one JSON object per clock cycle",
@@ -14,7 +16,6 @@ FORMAT_HELP = {
 
 
 def register(sub):
-    from ..export import FORMATS
     from .common import add_memory_options
 
     p = sub.add_parser(
@@ -28,7 +29,7 @@ def register(sub):
     p.add_argument("test", metavar="TEST", help="a library name, a file, or a notation starting with '{'")
     add_memory_options(p)
     g = p.add_argument_group("output")
-    g.add_argument("--format", "-f", choices=FORMATS, help="output format (default: from the extension of -o)")
+    g.add_argument("--format", "-f", choices=tuple(FORMAT_HELP), help="output format (default: from the extension of -o)")
     g.add_argument("-o", "--output", required=True, metavar="FILE",
                    help="output file ('-' for standard output; hex then writes no testbench, nor to a device or pipe)")
     g.add_argument("--force", action="store_true", help="replace existing files")
