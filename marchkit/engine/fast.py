@@ -549,7 +549,7 @@ class Engine:
         else:                      # very many background runs: number the distinct rows
             _, key = np.unique(np.stack([flags] + cols, axis=1), axis=0, return_inverse=True)
             key = key.ravel().astype(np.int64)
-        return key, w, pred, succ
+        return key
 
     def _sof_verdict(self, kind, cell):
         prep = self.prep
@@ -566,7 +566,7 @@ class Engine:
     def grade_sof(self, kinds, results):
         prep = self.prep
         cells = np.arange(prep.n * prep.B, dtype=np.int64)
-        key, *_ = self._sof_keys(cells)
+        key = self._sof_keys(cells)
         uk, first_idx, counts = np.unique(key, return_index=True, return_counts=True)
         for kind in kinds:
             res = results.setdefault(kind.text, KindResult(kind))
