@@ -22,7 +22,8 @@ word (:func:`scenario_word`):
 Cells the fault does not involve start unknown (``x``); a read of an unknown value never
 mismatches (the comparator's ``if`` treats ``x`` as false), as in the fault simulators.
 
-``+program=FILE`` (``program`` style) loads another program into the instruction memory first.
+``+program=FILE`` (``program`` style) loads another program into the instruction memory first;
+``+cycles=N +ops=N`` give its figures for the fault-free check.
 """
 
 from __future__ import annotations
@@ -62,7 +63,6 @@ def period_ps(clock_hz) -> int:
 def testbench(ir: BistIR, top: str, style: str, lat: int = 1) -> str:
     per = period_ps(ir.clock_hz)
     sram = f"{top}_sram"
-    timeout = ir.cycles + lat + 16
     reload = ""
     if style == "program":
         reload = """        if ($value$plusargs("program=%s", file)) begin
@@ -79,16 +79,15 @@ def testbench(ir: BistIR, top: str, style: str, lat: int = 1) -> str:
 // Fault-free (no plusargs): prints "PASS: N cycles" or stops with $fatal.
 // +faults=FILE: one scenario per line (fault primitives, address-decoder faults, initial values;
 //   the layout is in marchkit/bist/testbench.py), prints "scenario I fail F cycle C addr A bits B".
-// +program=FILE: load another program first (program style).  Clock period {per} ps.
+// +program=FILE: load another program first (program style); +cycles=N +ops=N: its figures
+//   for the fault-free check.  Clock period {per} ps.
 `timescale 1ps/1ps
 module {top}_tb;
     localparam AW = {ir.aw};
     localparam DW = {ir.dw};
     localparam WORDS = {ir.words};
     localparam LAT = {lat};
-    localparam [31:0] CYCLES = 32'd{ir.cycles};
-    localparam [31:0] OPS = 32'd{ir.ops};
-    localparam [31:0] TIMEOUT = 32'd{timeout};
+    reg [31:0] CYCLES, OPS, TIMEOUT;      // the test's figures (+cycles=N +ops=N for another program)
     localparam PERIOD = {per};
 
     reg clk, rst_n, start;
@@ -153,6 +152,11 @@ module {top}_tb;
         rst_n = 1'b0;
         start = 1'b0;
         bad = 0;
+        CYCLES = 32'd{ir.cycles};
+        OPS = 32'd{ir.ops};
+        if ($value$plusargs("cycles=%d", CYCLES)) ;
+        if ($value$plusargs("ops=%d", OPS)) ;
+        TIMEOUT = CYCLES + LAT + 16;
 {reload}        if ($value$plusargs("faults=%s", file)) begin
             fd = $fopen(file, "r");
             if (fd == 0)

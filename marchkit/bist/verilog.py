@@ -116,9 +116,11 @@ def _background_block(ir: BistIR, rw: int) -> str:
     lines = []
     if ir.mux_log2 is not None:
         m = ir.mux_log2
-        lines.append(f"    wire rowpar = {_phys_bit(ir, m)};   // parity of the physical row (p >> {m})")
-        slot = _phys_bit(ir, 0) if m > 0 else "1'b0"
-        lines.append(f"    wire slotpar = {slot};   // parity of the word's slot in its row")
+        if any(b.row_mask for b in ir.backgrounds):
+            lines.append(f"    wire rowpar = {_phys_bit(ir, m)};   // parity of the physical row (p >> {m})")
+        if any(b.slot_mask for b in ir.backgrounds):
+            slot = _phys_bit(ir, 0) if m > 0 else "1'b0"
+            lines.append(f"    wire slotpar = {slot};   // parity of the word's slot in its row")
     lines.append(f"    reg [DW-1:0] bg;   // the background word w0 writes at addr in this run")
     lines.append("    always @* begin")
     lines.append(f"        case (run)")
