@@ -266,7 +266,7 @@ FAULT_CASES = [
      "RDF,DRDF,IRF,CFds,CFtr,CFwd,CFrd,CFdrd,CFir,AF", 2, 2),
     ("MATS+", dict(words=16, bits=1, backgrounds="solid,checkerboard", mux=4, order="gray"),
      "SAF,TF,CFin,CFid,CFst,AF,RDF,IRF,CFrd,CFds", 2, 3),
-    ("IFA-9", dict(words=8, bits=2, backgrounds="rows", mux=2, order="stride:1", clock="2kHz", write_cycles=2),
+    ("IFA-9", dict(words=8, bits=2, backgrounds="rows", mux=2, order="stride:1", clock="200Hz", write_cycles=2),
      "SAF,TF,CFid,CFst,AF,DRDF,CFdrd,CFir,CFwd", 2, 4),
 ]
 
