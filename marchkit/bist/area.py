@@ -36,9 +36,10 @@ def is_ff(cell_type: str) -> bool:
 
 def synth_stats(directory, top: str, blackbox: str | None = None, flatten: bool = True) -> dict:
     """Run yosys on ``DIR/<top>.v`` (in that directory) → {type: count} of the top module."""
-    script = [f"read_verilog {top}.v", f"hierarchy -top {top}"]
-    if blackbox:
+    script = [f"read_verilog {top}.v"]
+    if blackbox:                       # before hierarchy: no parameterised copy is derived
         script.append(f"blackbox {blackbox}")
+    script.append(f"hierarchy -top {top}")
     script.append(f"synth -top {top}" + (" -flatten" if flatten else ""))
     script.append("tee -q -o stat.json stat -json")
     try:

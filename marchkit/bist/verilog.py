@@ -137,31 +137,30 @@ def _background_block(ir: BistIR, rw: int) -> str:
     return "\n".join(lines) + "\n"
 
 
-def _fsm_steps(ir: BistIR, pcw: int, repw: int, dlyw: int) -> str:
+def _fsm_steps(ir: BistIR, pcw: int, cw: int) -> str:
     words = program_words(ir)
     out = ["    // the steps, one state each: constants of the state (hard-wired)"]
     out.append("    reg st_delay_step, st_write, st_value, st_cmp_first, st_cmp_later, st_last_op, st_down, st_last_item;")
-    out.append(f"    reg [{repw - 1}:0] st_rep;")
-    out.append(f"    reg [{dlyw - 1}:0] st_dly;")
+    out.append(f"    reg [{cw - 1}:0] st_count;   // repeats - 1 of an operation, cycles - 1 of a delay")
     out.append(f"    reg [{pcw - 1}:0] st_first;")
     out.append("    always @* begin")
     out.append("        st_delay_step = 1'b0; st_write = 1'b0; st_value = 1'b0; st_cmp_first = 1'b0;")
     out.append("        st_cmp_later = 1'b0; st_last_op = 1'b1; st_down = 1'b0; st_last_item = 1'b1;")
-    out.append(f"        st_rep = {repw}'d0; st_dly = {dlyw}'d0; st_first = {pcw}'d0;")
+    out.append(f"        st_count = {cw}'d0; st_first = {pcw}'d0;")
     out.append("        case (pc)")
     for i, (s, w) in enumerate(zip(ir.steps, words)):
         last_item = (w >> 6) & 1
         if s.is_delay:
             out.append(f"            {pcw}'d{i}: begin   // delay {s.cycles} cycles")
             out.append(f"                st_delay_step = 1'b1; st_last_item = 1'b{last_item}; "
-                       f"st_dly = {dlyw}'d{s.cycles - 1}; st_first = {pcw}'d{i};")
+                       f"st_count = {cw}'d{s.cycles - 1}; st_first = {pcw}'d{i};")
         else:
             op = f"{'w' if s.write else 'r'}{s.value}" + (f"^{s.repeat}" if s.repeat > 1 else "")
             out.append(f"            {pcw}'d{i}: begin   // element {s.element}, {'down' if s.down else 'up'}, {op}")
             out.append(f"                st_write = 1'b{int(s.write)}; st_value = 1'b{s.value}; "
                        f"st_cmp_first = 1'b{int(s.compare_first)}; st_cmp_later = 1'b{int(s.compare_later)};")
             out.append(f"                st_last_op = 1'b{int(s.last_op)}; st_down = 1'b{int(s.down)}; "
-                       f"st_last_item = 1'b{last_item}; st_rep = {repw}'d{s.repeat - 1}; st_first = {pcw}'d{s.first};")
+                       f"st_last_item = 1'b{last_item}; st_count = {cw}'d{s.repeat - 1}; st_first = {pcw}'d{s.first};")
         out.append("            end")
     out.append("            default: ;")
     out.append("        endcase")
@@ -178,11 +177,10 @@ def controller(ir: BistIR, top: str, style: str, prog_depth: int | None = None, 
     if style == "fsm":
         n = len(ir.steps)
         pcw = _bits(n - 1)
-        repw = _bits(max((s.repeat - 1 for s in ir.steps if not s.is_delay), default=0))
-        dlyw = _bits(max((s.cycles - 1 for s in ir.steps if s.is_delay), default=0))
+        cw = _bits(max(s.cycles - 1 if s.is_delay else s.repeat - 1 for s in ir.steps))
         params = f"parameter AW = {aw}, DW = {dw}, LAT = {lat}"
         pc_decl = f"    localparam PCW = {pcw};\n"
-        steps = _fsm_steps(ir, pcw, repw, dlyw)
+        steps = _fsm_steps(ir, pcw, cw)
         visit_pc = "st_first"
         elem_reg = ""
         elem_reset = ""
@@ -193,7 +191,7 @@ def controller(ir: BistIR, top: str, style: str, prog_depth: int | None = None, 
         params = (f"parameter AW = {aw}, DW = {dw}, LAT = {lat},\n"
                   f"    parameter PROGRAM = \"{top}_program.hex\", parameter PROG_DEPTH = {depth}")
         pcw = None
-        repw, dlyw = 16, 32
+        cw = 32
         pc_decl = "    localparam PCW = $clog2(PROG_DEPTH);\n"
         steps = f"""    // the steps: instructions read from the program memory at pc
     wire [{IW - 1}:0] ins;
@@ -206,8 +204,7 @@ def controller(ir: BistIR, top: str, style: str, prog_depth: int | None = None, 
     wire st_down = ins[5];
     wire st_last_item = ins[6];
     wire st_delay_step = ins[7];
-    wire [15:0] st_rep = ins[23:8];
-    wire [31:0] st_dly = ins[39:8];
+    wire [31:0] st_count = ins[39:8];   // repeats - 1 of an operation, cycles - 1 of a delay
 """
         visit_pc = "elem_pc"
         elem_reg = "    reg [PCW-1:0] elem_pc;      // first instruction of the current element\n"
@@ -244,9 +241,8 @@ module {top} #({params}) (
     reg [PCW-1:0] pc;            // current step
 {elem_reg}    reg [AW-1:0] idx;            // position of the visit in the element (0 .. LAST)
     reg [{rw - 1}:0] run;             // background run
-    reg [{repw - 1}:0] rep;             // repeat of the current operation
+    reg [{cw - 1}:0] cnt;             // repeat of the current operation, or cycle of the delay
     reg [{waitw - 1}:0] wait_cnt;        // cycle of the current operation
-    reg [{dlyw - 1}:0] dly;             // cycle of the current delay
     reg [31:0] cycle;            // cycle number (0 = first operation)
     reg [AW-1:0] fail_addr_r;
     reg [DW-1:0] fail_bits_r;
@@ -264,10 +260,10 @@ module {top} #({params}) (
 
     // sequencing
     wire op_end = (wait_cnt == (st_write ? WRITE_WAIT : READ_WAIT));
-    wire rep_end = (rep == st_rep);
+    wire rep_end = (cnt == st_count);
     wire visit_end = op_end & rep_end & st_last_op;
     wire elem_end = visit_end & (idx == LAST);
-    wire dly_end = (dly == st_dly);
+    wire dly_end = (cnt == st_count);
     wire item_end = st_delay_step ? dly_end : elem_end;
 
     assign mem_ce = running & ~st_delay_step & (wait_cnt == {waitw}'d0);
@@ -329,9 +325,8 @@ module {top} #({params}) (
             pc <= {pcz};
 {elem_reset}            idx <= {{AW{{1'b0}}}};
             run <= {rw}'d0;
-            rep <= {repw}'d0;
+            cnt <= {cw}'d0;
             wait_cnt <= {waitw}'d0;
-            dly <= {dlyw}'d0;
             cycle <= 32'd0;
             fail_addr_r <= {{AW{{1'b0}}}};
             fail_bits_r <= {{DW{{1'b0}}}};
@@ -343,9 +338,8 @@ module {top} #({params}) (
             pc <= {pcz};
 {elem_reset}            idx <= {{AW{{1'b0}}}};
             run <= {rw}'d0;
-            rep <= {repw}'d0;
+            cnt <= {cw}'d0;
             wait_cnt <= {waitw}'d0;
-            dly <= {dlyw}'d0;
             cycle <= 32'd0;
             fail_addr_r <= {{AW{{1'b0}}}};
             fail_bits_r <= {{DW{{1'b0}}}};
@@ -367,15 +361,15 @@ module {top} #({params}) (
             end
             if (running) begin
                 if (st_delay_step)
-                    dly <= dly_end ? {dlyw}'d0 : dly + 1'b1;
+                    cnt <= dly_end ? {cw}'d0 : cnt + 1'b1;
                 else if (!op_end)
                     wait_cnt <= wait_cnt + 1'b1;
                 else begin
                     wait_cnt <= {waitw}'d0;
                     if (!rep_end)
-                        rep <= rep + 1'b1;
+                        cnt <= cnt + 1'b1;
                     else begin
-                        rep <= {repw}'d0;
+                        cnt <= {cw}'d0;
                         if (!st_last_op)
                             pc <= pc + 1'b1;
                         else if (idx != LAST) begin
