@@ -104,7 +104,7 @@ def test_orders_and_backgrounds_against_the_model():
 
     from marchkit.model import address_order, background_array, background_names
 
-    for order in ("linear", "complement", "gray", "stride:1", "stride:3"):
+    for order in ("linear", "complement", "gray", "stride:1", "stride:3", "random:3", "random:0"):
         for bg, mux in (("checkerboard", 4), ("rows", 2), ("columns", 8), ("word", 1), ("checkerboard", 1)):
             mem = make_memory(64, 6, order=order, backgrounds=bg, mux=mux, scramble_bits="2,0,1,5,4,3", scramble_xor=9)
             ir = lower(mem=mem, test=resolve_test("MATS+"))
@@ -113,15 +113,15 @@ def test_orders_and_backgrounds_against_the_model():
                 arr = background_array(mem, name)
                 want = [int("".join(str(b) for b in row[::-1]), 2) for row in arr]
                 assert [background_word(ir, run, a) for a in range(64)] == want
-    mem = make_memory(12, 2, order="complement")
-    ir = lower(resolve_test("MATS+"), mem)
-    assert [address_at(ir, p) for p in range(12)] == address_order(mem).tolist()
+    for words in (2, 3, 12, 33, 100, 1000):
+        for order in ("complement", "random:1", "random:77"):
+            mem = make_memory(words, 2, order=order)
+            ir = lower(resolve_test("MATS+"), mem)
+            assert [address_at(ir, p) for p in range(words)] == address_order(mem).tolist()
 
 
 def test_refusals():
     t = resolve_test("March C-")
-    with pytest.raises(BistError, match="LFSR"):
-        lower(t, make_memory(16, 1, order="random:3"))
     with pytest.raises(BistError, match="power-of-two"):
         lower(t, make_memory(12, 1, order="gray"))
     with pytest.raises(BistError, match="mux"):
@@ -161,10 +161,14 @@ def test_fault_free_every_library_test_fsm_style(tmp_path):
         assert f"PASS: {ir.cycles} cycles" in out, (t.name, out)
 
 
-def test_fault_free_read_latency_and_stride(tmp_path):
+def test_fault_free_read_latency_stride_and_lfsr(tmp_path):
     need_tool("iverilog")
     mem = make_memory(32, 8, order="stride:2", backgrounds="0xA5,checkerboard", mux=4, write_cycles=2)
+    mem2 = make_memory(23, 2, order="random:5", backgrounds="solid,0x2")
     for style in ("fsm", "program"):
+        d = tmp_path / f"{style}rnd"
+        ir, _ = build(d, resolve_test("March C-"), mem2, style)
+        assert f"PASS: {ir.cycles} cycles" in run(["vvp", "-n", "sim.vvp"], d)
         for lat in (1, 3):
             d = tmp_path / f"{style}{lat}"
             ir, _ = build(d, resolve_test("March SS"), mem, style, lat=lat)
@@ -268,6 +272,7 @@ FAULT_CASES = [
      "SAF,TF,CFin,CFid,CFst,AF,RDF,IRF,CFrd,CFds", 2, 3),
     ("IFA-9", dict(words=8, bits=2, backgrounds="rows", mux=2, order="stride:1", clock="200Hz", write_cycles=2),
      "SAF,TF,CFid,CFst,AF,DRDF,CFdrd,CFir,CFwd", 2, 4),
+    ("March LR", dict(words=10, bits=1, order="random:4"), "SAF,TF,CFin,CFid,CFst,AF,CFds", 2, 5),
 ]
 
 
@@ -324,6 +329,7 @@ LINT_CASES = [
                     read_cycles=2, write_cycles=3, clock="1MHz"), 2),
     ("{⇕(w0); ⇑(r0^16,w1); ⇓(r1,w0)}", dict(words=12, bits=1, order="complement"), 1),
     ("March SS", dict(words=256, bits=5, order="stride:3", backgrounds="columns", mux=8), 4),
+    ("March RAW", dict(words=200, bits=3, order="random:9", backgrounds="checkerboard", mux=2), 1),
 ]
 
 
@@ -442,7 +448,7 @@ def test_cli_program_only(tmp_path, cli):
 
 
 @pytest.mark.parametrize("args,msg", [
-    (("March C-", "--order", "random:2"), "LFSR"),
+    (("March C-", "--words", "12", "--mux", "3", "--backgrounds", "rows"), "mux"),
     (("March C-", "--words", "12", "--order", "gray"), "power-of-two"),
     (("March C-", "--top", "9lives"), "--top"),
     (("March C-", "--bits", "0"), "bits per word"),

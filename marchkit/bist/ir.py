@@ -69,10 +69,18 @@ class Background:
 
 @dataclass(frozen=True)
 class AddressOrder:
-    """The ⇑ sequence as a function of the position ``i`` (⇓ visits position ``n−1−i``)."""
+    """The ⇑ sequence as a function of the position ``i`` (⇓ visits position ``n−1−i``), or for
+    ``random`` an LFSR walked forwards (⇑) and backwards (⇓) that skips the states beyond the
+    last word: address = state − 1 (model.orders: the maximal LFSR of ``width`` bits from the
+    seed, its states above ``n`` left out)."""
 
-    kind: str                 # linear | complement | gray | stride
+    kind: str                 # linear | complement | gray | stride | random
     arg: int = 0
+    width: int = 0            # random: LFSR bits
+    taps: tuple[int, ...] = ()    # random: 1-based tap positions (XOR feedback into bit 0)
+    up_first: int = 0         # random: state of the first ⇑ address
+    down_first: int = 0       # random: state of the first ⇓ address (the last ⇑ one)
+    skip: int = 1             # random: at most this many LFSR steps from one address to the next
 
 
 @dataclass(frozen=True)
@@ -135,10 +143,50 @@ def lower_order(mem) -> AddressOrder:
                 f"number of words only ({mem.words} words); use linear or complement, or a "
                 "power-of-two memory")
         return AddressOrder(kind, int(arg or 0))
-    raise BistError(
-        f"address order {mem.order}: the BIST address generator does not make the filtered LFSR "
-        "sequence (skipping the states beyond the last word takes an unbounded look-ahead); "
-        "use linear, gray, complement or stride:I")
+    return _lfsr_order(mem.words, int(arg))
+
+
+def lfsr_next(state: int, width: int, taps) -> int:
+    fb = 0
+    for t in taps:
+        fb ^= state >> (t - 1)
+    return ((state << 1) | (fb & 1)) & ((1 << width) - 1)
+
+
+def lfsr_prev(state: int, width: int, taps) -> int:
+    """The state before ``state`` (the feedback includes the top bit: tap ``width``)."""
+    top = state & 1
+    for t in taps:
+        if t != width:
+            top ^= (state >> t) & 1
+    return (state >> 1) | (top << (width - 1))
+
+
+def _lfsr_order(n: int, seed: int) -> AddressOrder:
+    from ..model.orders import LFSR_TAPS
+
+    k = max(2, n.bit_length())
+    if k not in LFSR_TAPS:
+        raise BistError(f"address order random: no LFSR of {k} bits")
+    taps = tuple(LFSR_TAPS[k])
+    if max(taps) != k:
+        raise BistError(f"address order random: the {k}-bit LFSR's taps do not include bit {k}")
+    period = (1 << k) - 1
+    start = seed % period + 1
+    # walk the cycle once (2^k − 1 ≤ 2n − 1 states): the first and last valid states in the
+    # ⇑ order and the longest run of skipped states
+    s, first, last, gap, run = start, None, None, 0, 0
+    for _ in range(period):
+        if s <= n:
+            if first is None:
+                first = s
+            last = s
+            gap = max(gap, run)
+            run = 0
+        else:
+            run += 1
+        s = lfsr_next(s, k, taps)
+    return AddressOrder("random", seed, k, taps, first, last, gap + 1)
 
 
 def lower_backgrounds(mem) -> tuple[tuple[Background, ...], int | None]:
@@ -273,9 +321,37 @@ def address_at(ir: BistIR, pos: int) -> int:
         return n - 1 - (pos >> 1) if pos & 1 else pos >> 1
     if k == "gray":
         return pos ^ (pos >> 1)
+    if k == "random":
+        return _random_walk(ir.order, n)[pos]
     i = ir.order.arg
     lo = pos & ((1 << (aw - i)) - 1)
     return (lo << i) | (pos >> (aw - i))
+
+
+def _random_walk(o: AddressOrder, n: int) -> list[int]:
+    """The ⇑ addresses as the hardware makes them: from ``up_first``, each next address at most
+    ``skip`` LFSR steps on (checked), and the ⇓ walk from ``down_first`` backwards must be its
+    exact reverse (checked)."""
+    up = [o.up_first]
+    while len(up) < n:
+        s = up[-1]
+        for _ in range(o.skip):
+            s = lfsr_next(s, o.width, o.taps)
+            if s <= n:
+                break
+        assert s <= n, "skip chain too short"
+        up.append(s)
+    down = [o.down_first]
+    while len(down) < n:
+        s = down[-1]
+        for _ in range(o.skip):
+            s = lfsr_prev(s, o.width, o.taps)
+            if s <= n:
+                break
+        assert s <= n, "skip chain too short"
+        down.append(s)
+    assert down == up[::-1]
+    return [s - 1 for s in up]
 
 
 def background_word(ir: BistIR, run: int, a: int) -> int:

@@ -97,10 +97,44 @@ def _address_expr(ir: BistIR) -> str:
         return f"pos[0] ? (LAST - (pos >> 1)) : (pos >> 1)"
     if k == "gray":
         return "pos ^ (pos >> 1)"
+    if k == "random":
+        return f"(st_down ? lf_dn[{aw - 1}:0] : lf_up[{aw - 1}:0]) - 1'b1"
     i = ir.order.arg
     if i == 0:
         return "pos"
     return f"{{pos[{aw - i - 1}:0], pos[{aw - 1}:{aw - i}]}}"
+
+
+def _lfsr_block(ir: BistIR) -> str:
+    """Two LFSR registers: the state of the current ⇑ position and of the current ⇓ position;
+    each visit steps both (forwards and backwards) to the next state that is a word."""
+    o = ir.order
+    k = o.width
+
+    def nxt(v):
+        fb = " ^ ".join(f"{v}[{t - 1}]" for t in o.taps)
+        return f"{{{v}[{k - 2}:0], {fb}}}"
+
+    def prv(v):
+        fb = " ^ ".join([f"{v}[0]"] + [f"{v}[{t}]" for t in o.taps if t != k])
+        return f"{{{fb}, {v}[{k - 1}:1]}}"
+
+    lines = [f"    // LFSR address order ({k} bits, taps {', '.join(map(str, o.taps))}; address = state - 1;",
+             f"    // states above {ir.words} are skipped: at most {o.skip} steps per address)",
+             f"    localparam [{k - 1}:0] LF_LIMIT = {k}'d{ir.words};",
+             f"    localparam [{k - 1}:0] LF_UP_FIRST = {k}'d{o.up_first};",
+             f"    localparam [{k - 1}:0] LF_DOWN_FIRST = {k}'d{o.down_first};",
+             f"    reg [{k - 1}:0] lf_up, lf_dn;"]
+    for name, reg, step in (("up", "lf_up", nxt), ("dn", "lf_dn", prv)):
+        prev = reg
+        for j in range(1, o.skip + 1):
+            lines.append(f"    wire [{k - 1}:0] lf_{name}{j} = {step(prev)};")
+            prev = f"lf_{name}{j}"
+        sel = f"lf_{name}{o.skip}"
+        for j in range(o.skip - 1, 0, -1):
+            sel = f"(lf_{name}{j} <= LF_LIMIT) ? lf_{name}{j} : {sel}"
+        lines.append(f"    wire [{k - 1}:0] lf_{name}_next = {sel};")
+    return "\n".join(lines) + "\n"
 
 
 def _phys_bit(ir: BistIR, i: int) -> str:
@@ -169,6 +203,12 @@ def _fsm_steps(ir: BistIR, pcw: int, cw: int) -> str:
 
 
 def controller(ir: BistIR, top: str, style: str, prog_depth: int | None = None, lat: int = 1) -> str:
+    rnd = ir.order.kind == "random"
+    lf_block = _lfsr_block(ir) if rnd else ""
+    lf_reset = "LF_UP_FIRST; lf_dn <= LF_DOWN_FIRST;"
+    lf_init = f"            lf_up <= {lf_reset}\n" if rnd else ""
+    lf_step = "                            lf_up <= lf_up_next; lf_dn <= lf_dn_next;\n" if rnd else ""
+    lf_end = f"                            lf_up <= {lf_reset}\n" if rnd else ""
     """The Verilog text of ``DIR/<top>.v``."""
     aw, dw = ir.aw, ir.dw
     runs = ir.runs
@@ -250,7 +290,7 @@ module {top} #({params}) (
 
 {steps}
     // address generator: position in the up order, reversed for down elements
-    wire [AW-1:0] pos = st_down ? (LAST - idx) : idx;
+{lf_block if rnd else "    wire [AW-1:0] pos = st_down ? (LAST - idx) : idx;"}
     wire [AW-1:0] addr = {_address_expr(ir)};
 
     // data-background generator
@@ -323,7 +363,7 @@ module {top} #({params}) (
             done_r <= 1'b0;
             fail_r <= 1'b0;
             pc <= {pcz};
-{elem_reset}            idx <= {{AW{{1'b0}}}};
+{elem_reset}{lf_init}            idx <= {{AW{{1'b0}}}};
             run <= {rw}'d0;
             cnt <= {cw}'d0;
             wait_cnt <= {waitw}'d0;
@@ -336,7 +376,7 @@ module {top} #({params}) (
             done_r <= 1'b0;
             fail_r <= 1'b0;
             pc <= {pcz};
-{elem_reset}            idx <= {{AW{{1'b0}}}};
+{elem_reset}{lf_init}            idx <= {{AW{{1'b0}}}};
             run <= {rw}'d0;
             cnt <= {cw}'d0;
             wait_cnt <= {waitw}'d0;
@@ -374,9 +414,10 @@ module {top} #({params}) (
                             pc <= pc + 1'b1;
                         else if (idx != LAST) begin
                             idx <= idx + 1'b1;
-                            pc <= {visit_pc};
-                        end else
+{lf_step}                            pc <= {visit_pc};
+                        end else begin
                             idx <= {{AW{{1'b0}}}};
+{lf_end}                        end
                     end
                 end
                 if (item_end) begin
