@@ -471,3 +471,87 @@ def test_cli_area(tmp_path, cli):
     assert code == 0, err
     m = re.search(r"area: (\d+) cells, (\d+) flip-flops", out)
     assert m and int(m.group(1)) > int(m.group(2)) > 0
+
+
+# ---- transparent test (Nicolaidis, IEEE Trans. Computers 45(10), 1996) -----------------------
+
+def test_transparent_transformation():
+    """The transformation as described by Nicolaidis (1996): the initialising element goes,
+    values become relative to the contents, every element starts with a read, and the contents
+    come back (an element is added when the test would leave them inverted)."""
+    from marchkit.bist.ir import transparent_test
+    from marchkit.notation import format_notation
+
+    assert format_notation(transparent_test(resolve_test("March C-")), ascii=True) == \
+        "{up(r0,w1); up(r1,w0); down(r0,w1); down(r1,w0); any(r0)}"
+    assert format_notation(transparent_test(resolve_test("{⇕(w0); ⇑(r0,w1)}")), ascii=True) == \
+        "{up(r0,w1); up(r1,w0)}"
+    # an initialising w1: values are taken relative to it
+    assert format_notation(transparent_test(resolve_test("{⇕(w1); ⇑(r1,w0); ⇓(r0,w1)}")), ascii=True) == \
+        "{up(r0,w1); down(r1,w0)}"
+    with pytest.raises(BistError, match="begin with a read"):
+        transparent_test(resolve_test("March SR"))
+    with pytest.raises(BistError, match="solid"):
+        lower(resolve_test("March C-"), make_memory(8, 4, backgrounds="word"), True)
+
+
+def test_transparent_fault_free_restores_contents(tmp_path):
+    need_tool("iverilog")
+    mem = make_memory(16, 6, order="complement", clock="10kHz")
+    for name in ("MATS+", "March C-", "March SS", "March AB", "March B", "IFA-9"):
+        for style in ("fsm", "program"):
+            d = tmp_path / f"{style}{name.replace(' ', '')}"
+            ir, files, _ = generate(resolve_test(name), mem, style, "mbist", transparent=True)
+            write_directory(files, d)
+            run(["iverilog", "-o", "sim.vvp", "mbist_tb.v", "mbist.v"], d)
+            for seed in (1, 99):
+                out = run(["vvp", "-n", "sim.vvp", f"+seed={seed}"], d)
+                assert "contents restored" in out and f"PASS: {ir.cycles} cycles" in out, (name, out)
+
+
+def test_transparent_detects_every_stuck_at_and_transition_fault(tmp_path):
+    """Every SAF and TF instance fails the transparent March C- whatever the memory holds
+    (each cell is written and read at both values and both transitions; Nicolaidis 1996: the
+    transparent test keeps the coverage of these faults, up to signature aliasing); the
+    fault-free scenarios pass and leave the contents as they were."""
+    from marchkit.faults import select_faults
+    from marchkit.faults.catalogue import enumerate_instances, parse_pairs
+
+    need_tool("iverilog")
+    mem = make_memory(8, 2)
+    _, files, _ = generate(resolve_test("March C-"), mem, "fsm", "mbist", transparent=True)
+    write_directory(files, tmp_path / "t")
+    d = tmp_path / "t"
+    run(["iverilog", "-o", "sim.vvp", "mbist_tb.v", "mbist.v"], d)
+    lines = []
+    for kind in select_faults("SAF,TF").kinds:
+        for inst in enumerate_instances(kind, mem, parse_pairs("all")):
+            lines += scenarios(inst, mem)
+    lines += [scenario_word(0)] * 4
+    (d / "f.txt").write_text("\n".join(lines) + "\n")
+    for seed in (3, 4):
+        out = run(["vvp", "-n", "sim.vvp", "+faults=f.txt", f"+seed={seed}"], d)
+        got = re.findall(r"scenario \d+ fail (\d) .* restored (\d)", out)
+        assert len(got) == len(lines)
+        assert all(f == "1" for f, _ in got[:-4])
+        assert got[-4:] == [("0", "1")] * 4
+
+
+@pytest.mark.parametrize("dw", [5, 32, 70])
+def test_transparent_lint_clean(tmp_path, dw):
+    need_tool("verilator")
+    for style in ("fsm", "program"):
+        _, files, _ = generate(resolve_test("March SS"), make_memory(64, dw, order="random:2"), style,
+                               "kestrel_bist", transparent=True)
+        d = tmp_path / style
+        write_directory(files, d)
+        res = subprocess.run(["verilator", "--lint-only", "-Wall", "kestrel_bist.v"], cwd=d,
+                             capture_output=True, text=True, timeout=300)
+        assert res.returncode == 0 and "%Warning" not in res.stderr, res.stderr
+
+
+def test_cli_transparent(tmp_path, cli):
+    code, out, err = cli("bist", "March SR", "--transparent", "-o", str(tmp_path / "x"))
+    assert code == 2 and "begin with a read" in err
+    code, out, err = cli("bist", "March C-", "--words", "64", "--transparent", "-o", str(tmp_path / "y"))
+    assert code == 0 and "transparent" in out and "1152 cycles" in out

@@ -47,7 +47,7 @@ def check_top(name: str) -> str:
     return name
 
 
-def default_depth(ir: BistIR, mem) -> int:
+def default_depth(ir: BistIR, mem, transparent: bool = False) -> int:
     """Instruction memory depth: a power of two holding this test and every library test
     that runs on this memory (so the same RTL runs them all)."""
     from ..notation import library
@@ -55,7 +55,7 @@ def default_depth(ir: BistIR, mem) -> int:
     need = len(ir.steps)
     for t in library():
         try:
-            need = max(need, len(lower(t, mem).steps))
+            need = max(need, len(lower(t, mem, transparent).steps))
         except InputError:
             continue
     d = MIN_PROG_DEPTH
@@ -75,7 +75,8 @@ class BistResult:
     area: dict | None = field(default=None)
 
 
-def generate(test, mem, style: str, top: str, lat: int = 1, prog_depth: int | None = None):
+def generate(test, mem, style: str, top: str, lat: int = 1, prog_depth: int | None = None,
+             transparent: bool = False):
     """(IR, {file name: text}) of the BIST for ``test`` on ``mem``."""
     from .testbench import testbench
     from .verilog import controller, program_text
@@ -85,10 +86,13 @@ def generate(test, mem, style: str, top: str, lat: int = 1, prog_depth: int | No
     check_top(top)
     if not 1 <= lat <= MAX_LAT:
         raise InputError(f"read latency {lat}: give 1 to {MAX_LAT} cycles")
-    ir = lower(test, mem)
+    ir = lower(test, mem, transparent)
+    if transparent and lat > min(mem.read_cycles, mem.write_cycles):
+        raise BistError(f"transparent test: the read latency ({lat}) must not exceed the cycles of an "
+                        "operation (the write after a read uses the data it returned)")
     files = {}
     if style == "program":
-        prog_depth = prog_depth or default_depth(ir, mem)
+        prog_depth = prog_depth or default_depth(ir, mem, transparent)
         if len(ir.steps) > prog_depth:
             raise BistError(f"the program has {len(ir.steps)} instructions, more than PROG_DEPTH {prog_depth}")
         files[f"{top}.v"] = controller(ir, top, style, prog_depth, lat)
@@ -135,8 +139,8 @@ def write_directory(files: dict, outdir, force: bool = False) -> None:
 
 
 def write_bist(test, mem, outdir, style: str = "fsm", top: str = "mbist", force: bool = False,
-               lat: int = 1, area: bool = False) -> BistResult:
-    ir, files, depth = generate(test, mem, style, top, lat)
+               lat: int = 1, area: bool = False, transparent: bool = False) -> BistResult:
+    ir, files, depth = generate(test, mem, style, top, lat, transparent=transparent)
     rep = None
     if area:
         from .area import synth_area
@@ -147,14 +151,14 @@ def write_bist(test, mem, outdir, style: str = "fsm", top: str = "mbist", force:
 
 
 def write_program(test, mem, path, top: str = "mbist", force: bool = False,
-                  prog_depth: int | None = None) -> tuple[BistIR, int]:
+                  prog_depth: int | None = None, transparent: bool = False) -> tuple[BistIR, int]:
     """``--program-only``: the ``$readmemh`` program of ``test`` (atomic single file)."""
     from ..files import write_file
     from .verilog import program_text
 
     check_top(top)
-    ir = lower(test, mem)
-    depth = prog_depth or default_depth(ir, mem)
+    ir = lower(test, mem, transparent)
+    depth = prog_depth or default_depth(ir, mem, transparent)
     write_file(path, program_text(ir, top, depth), force=force)
     return ir, depth
 

@@ -102,6 +102,7 @@ class BistIR:
     scramble_xor: int
     cycles: int               # the whole test, all runs (= Schedule.cycles)
     ops: int                  # memory operations (= Schedule.ops)
+    transparent: bool = False     # run 0 predicts the signature, run 1 tests (Nicolaidis 1996)
 
     @property
     def runs(self) -> int:
@@ -223,14 +224,66 @@ def lower_backgrounds(mem) -> tuple[tuple[Background, ...], int | None]:
     return tuple(out), mux_log2
 
 
-def lower(test, mem) -> BistIR:
-    """The IR of ``test`` on ``mem``; :class:`BistError` when the hardware cannot run it."""
-    from ..model import schedule
+def transparent_test(test):
+    """Nicolaidis's transformation (IEEE Trans. Computers 45(10), 1996) of a march test into a
+    transparent one: the initialising element (writes only) is removed, every value is taken
+    relative to the memory's contents ``c`` (``0`` means ``c`` if the removed element wrote 0),
+    and an element ``⇑(r1,w0)`` is appended when the test would leave the contents inverted.
+    Every remaining element must begin with a read: the write data of a visit is made from what
+    its reads returned.  Returns the transformed :class:`MarchTest`."""
+    import dataclasses
+
+    from ..notation import Delay, Element, Op
+
+    items = list(test.items)
+    first = next((i for i, it in enumerate(items) if not isinstance(it, Delay)), None)
+    if first is None:
+        raise BistError("the test has no operation")
+    base = 0
+    if all(op.kind == "w" for op in items[first].ops):
+        base = items[first].ops[-1].value
+        del items[first]
+    out, state = [], base
+    for it in items:
+        if isinstance(it, Delay):
+            out.append(it)
+            continue
+        if it.ops[0].kind != "r":
+            raise BistError(
+                "transparent test: every element after the initialising one must begin with a read "
+                f"(its write data is made from what the read returned); {it.order}({','.join(o.text for o in it.ops)}) does not")
+        out.append(dataclasses.replace(it, ops=tuple(dataclasses.replace(o, value=o.value ^ base) for o in it.ops)))
+        for o in it.ops:
+            if o.kind == "w":
+                state = o.value
+    if not any(isinstance(it, Element) for it in out):
+        raise BistError("transparent test: nothing is left after the initialising element")
+    if state != base:
+        out.append(Element("up", (Op("r", 1), Op("w", 0))))
+    return dataclasses.replace(test, items=tuple(out), name=(test.display_name + " (transparent)"))
+
+
+def lower(test, mem, transparent: bool = False) -> BistIR:
+    """The IR of ``test`` on ``mem``; :class:`BistError` when the hardware cannot run it.
+
+    ``transparent``: the test transformed by :func:`transparent_test`, run twice — run 0
+    predicts the signature of the reads (writes are idle cycles), run 1 tests and restores."""
+    from ..model import schedule, with_changes
     from ..notation import Delay, format_notation
 
     order = lower_order(mem)
-    backgrounds, mux_log2 = lower_backgrounds(mem)
-    sched = schedule(test, mem)
+    if transparent:
+        from ..model import background_names
+
+        if background_names(mem) != ["solid"]:
+            raise BistError("transparent test: the memory's contents take the place of the data "
+                            "background; give --backgrounds solid (one run)")
+        test = transparent_test(test)
+        backgrounds, mux_log2 = (Background("prediction", 0, 0, 0), Background("test", 0, 0, 0)), None
+        sched = schedule(test, with_changes(mem, backgrounds=("solid", "solid")))
+    else:
+        backgrounds, mux_log2 = lower_backgrounds(mem)
+        sched = schedule(test, mem)
     if sched.cycles > MAX_CYCLES:
         raise BistError(
             f"the test takes {sched.cycles:,} cycles; fail_cycle has 32 bits (at most {MAX_CYCLES:,})")
@@ -251,8 +304,10 @@ def lower(test, mem) -> BistIR:
         down = item.order == "down"
         for k, op in enumerate(item.ops):
             write = op.kind == "w"
-            steps.append(OpStep(write, op.value, op.repeat, (not write) and seen_write,
-                                (not write) and any_write, k == len(item.ops) - 1, down, ei, first))
+            cmp_first = (not write) and (seen_write or transparent)
+            cmp_later = (not write) and (any_write or transparent)
+            steps.append(OpStep(write, op.value, op.repeat, cmp_first, cmp_later,
+                                k == len(item.ops) - 1, down, ei, first))
             seen_write = seen_write or write
     if not steps:
         raise BistError("the test has no operation")
@@ -266,7 +321,9 @@ def lower(test, mem) -> BistIR:
         order=order, words=mem.words, aw=mem.address_bits, dw=mem.bits,
         read_cycles=mem.read_cycles, write_cycles=mem.write_cycles, clock_hz=mem.clock_hz,
         mux_log2=mux_log2, scramble_bits=mem.scramble_bits, scramble_xor=mem.scramble_xor,
-        cycles=sched.cycles, ops=sched.ops,
+        cycles=sched.cycles,
+        ops=sched.ops - (sum(s.repeat for s in steps if not s.is_delay and s.write) * mem.words if transparent else 0),
+        transparent=transparent,
     )
 
 

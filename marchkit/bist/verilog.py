@@ -202,6 +202,110 @@ def _fsm_steps(ir: BistIR, pcw: int, cw: int) -> str:
     return "\n".join(out) + "\n"
 
 
+MISR_POLY = 0x04C11DB7      # the CRC-32 generator polynomial of IEEE 802.3 (x^32 + x^26 + ... + 1)
+
+
+def _pipeline(ir: BistIR) -> str:
+    """Shift registers carrying each read for LAT cycles: valid, expected word, and the address
+    (or, in a transparent test, the phase)."""
+    fields = [("pexp", "DW", "word_now")]
+    fields.append(("pph", "1", "predict") if ir.transparent else ("paddr", "AW", "addr"))
+    decl = "".join(f"    reg [LAT*{w}-1:0] {n};\n" for n, w, _ in fields)
+    r1 = "".join(f"                    {n} <= {{{w}{{1'b0}}}};\n" for n, w, _ in fields)
+    s1 = "".join(f"                    {n} <= {e};\n" for n, w, e in fields)
+    rn = "".join(f"                    {n} <= {{(LAT*{w}){{1'b0}}}};\n" for n, w, _ in fields)
+    sn = "".join(f"                    {n} <= {{{n}[(LAT-1)*{w}-1:0], {e}}};\n" for n, w, e in fields)
+    out = decl + f"""    generate
+        if (LAT == 1) begin : lat_one
+            always @(posedge clk or negedge rst_n)
+                if (!rst_n) begin
+                    pv <= 1'b0;
+                    pt <= 1'b0;
+{r1}                end else begin
+                    pv <= push;
+                    pt <= finish;
+{s1}                end
+        end else begin : lat_many
+            always @(posedge clk or negedge rst_n)
+                if (!rst_n) begin
+                    pv <= {{LAT{{1'b0}}}};
+                    pt <= {{LAT{{1'b0}}}};
+{rn}                end else begin
+                    pv <= {{pv[LAT-2:0], push}};
+                    pt <= {{pt[LAT-2:0], finish}};
+{sn}                end
+        end
+    endgenerate
+"""
+    if ir.transparent:
+        fold = _fold(ir.dw, "(pph[LAT-1] ? got : mem_rdata)")
+        out += f"""    // transparent test (Nicolaidis 1996): what the read returned, relative to the contents;
+    // the write data of a visit is made from the last read (a bypass when it arrives now)
+    assign got = mem_rdata ^ pexp[LAT*DW-1 -: DW];
+    assign ref_now = pv[LAT-1] ? got : ref_r;
+{"    wire [DW-1:0] fold_src = pph[LAT-1] ? got : mem_rdata;" + chr(10) if ir.dw > 32 else ""}    // signatures: multiple-input shift register with the CRC-32 polynomial (IEEE 802.3);
+    // run 0 compresses the reads as the test must see them, run 1 the reads it saw
+    wire [31:0] sig_in = {fold};
+    wire [31:0] sig_p_next = {{sig_p[30:0], 1'b0}} ^ ({{32{{sig_p[31]}}}} & 32'h{MISR_POLY:08x}) ^ sig_in;
+    wire [31:0] sig_t_next = {{sig_t[30:0], 1'b0}} ^ ({{32{{sig_t[31]}}}} & 32'h{MISR_POLY:08x}) ^ sig_in;
+    wire [31:0] sig_p_upd = (pv[LAT-1] & pph[LAT-1]) ? sig_p_next : sig_p;
+    wire [31:0] sig_t_upd = (pv[LAT-1] & ~pph[LAT-1]) ? sig_t_next : sig_t;
+"""
+    else:
+        out += """    wire [DW-1:0] diff = pexp[LAT*DW-1 -: DW] ^ mem_rdata;
+    wire mismatch = pv[LAT-1] & (|diff);
+"""
+    return out
+
+
+def _fold(dw: int, expr: str) -> str:
+    """``expr`` (DW bits) folded into 32 bits by XOR of 32-bit slices (``fold_src`` above 32)."""
+    if dw <= 32:
+        return expr if dw == 32 else f"{{{32 - dw}'d0, {expr}}}"
+    parts = []
+    for i in range(0, dw, 32):
+        hi = min(dw, i + 32) - 1
+        w = hi - i + 1
+        parts.append(f"fold_src[{hi}:{i}]" if w == 32 else f"{{{32 - w}'d0, fold_src[{hi}:{i}]}}")
+    return " ^ ".join(parts)
+
+
+def _transparent_decl(ir: BistIR) -> str:
+    if not ir.transparent:
+        return ""
+    out = """    wire predict = (run == 1'b0);     // run 0: signature prediction, writes idle
+    reg [DW-1:0] ref_r;                // the contents of the address, from its last read
+    reg [31:0] sig_p, sig_t;
+    wire [DW-1:0] got;                 // read data XOR expected value: the contents, if good
+    wire [DW-1:0] ref_now;
+"""
+    return out
+
+
+def _transparent_reset(ir: BistIR) -> str:
+    if not ir.transparent:
+        return ""
+    return """            ref_r <= {DW{1'b0}};
+            sig_p <= 32'd0;
+            sig_t <= 32'd0;
+"""
+
+
+def _compare_update(ir: BistIR) -> str:
+    if ir.transparent:
+        return """            ref_r <= ref_now;
+            sig_p <= sig_p_upd;
+            sig_t <= sig_t_upd;
+"""
+    return """            if (mismatch && !fail_r) begin
+                fail_r <= 1'b1;
+                fail_addr_r <= paddr[LAT*AW-1 -: AW];
+                fail_bits_r <= diff;
+                fail_cycle_r <= cycle - LAT32;
+            end
+"""
+
+
 def controller(ir: BistIR, top: str, style: str, prog_depth: int | None = None, lat: int = 1) -> str:
     rnd = ir.order.kind == "random"
     lf_block = _lfsr_block(ir) if rnd else ""
@@ -273,8 +377,7 @@ module {top} #({params}) (
     localparam [{rw - 1}:0] LAST_RUN = {rw}'d{runs - 1};     // background runs - 1
     localparam [{waitw - 1}:0] READ_WAIT = {waitw}'d{ir.read_cycles - 1};    // cycles per read - 1
     localparam [{waitw - 1}:0] WRITE_WAIT = {waitw}'d{ir.write_cycles - 1};   // cycles per write - 1
-    localparam [31:0] LAT32 = LAT;
-
+{"" if ir.transparent else "    localparam [31:0] LAT32 = LAT;" + chr(10)}
     reg running;                 // presenting operations / delay cycles
     reg draining;                // waiting for the last compares
     reg done_r, fail_r;
@@ -298,7 +401,7 @@ module {top} #({params}) (
     wire [DW-1:0] word_now = bg ^ {{DW{{st_value}}}};
     wire cmp_now = (run == {rw}'d0) ? st_cmp_first : st_cmp_later;
 
-    // sequencing
+{_transparent_decl(ir)}    // sequencing
     wire op_end = (wait_cnt == (st_write ? WRITE_WAIT : READ_WAIT));
     wire rep_end = (cnt == st_count);
     wire visit_end = op_end & rep_end & st_last_op;
@@ -306,10 +409,10 @@ module {top} #({params}) (
     wire dly_end = (cnt == st_count);
     wire item_end = st_delay_step ? dly_end : elem_end;
 
-    assign mem_ce = running & ~st_delay_step & (wait_cnt == {waitw}'d0);
+    assign mem_ce = running & ~st_delay_step & (wait_cnt == {waitw}'d0){" & ~(predict & st_write)" if ir.transparent else ""};
     assign mem_we = mem_ce & st_write;
     assign mem_addr = addr;
-    assign mem_wdata = word_now;
+    assign mem_wdata = {"ref_now ^ word_now" if ir.transparent else "word_now"};
     assign busy = running | draining;
     assign done = done_r;
     assign fail = fail_r;
@@ -322,40 +425,7 @@ module {top} #({params}) (
     wire finish = running & item_end & st_last_item & (run == LAST_RUN);   // the test's last cycle
     reg [LAT-1:0] pv;
     reg [LAT-1:0] pt;            // finish, delayed: done rises when the last compare is made
-    reg [LAT*DW-1:0] pexp;
-    reg [LAT*AW-1:0] paddr;
-    generate
-        if (LAT == 1) begin : lat_one
-            always @(posedge clk or negedge rst_n)
-                if (!rst_n) begin
-                    pv <= 1'b0;
-                    pt <= 1'b0;
-                    pexp <= {{DW{{1'b0}}}};
-                    paddr <= {{AW{{1'b0}}}};
-                end else begin
-                    pv <= push;
-                    pt <= finish;
-                    pexp <= word_now;
-                    paddr <= addr;
-                end
-        end else begin : lat_many
-            always @(posedge clk or negedge rst_n)
-                if (!rst_n) begin
-                    pv <= {{LAT{{1'b0}}}};
-                    pt <= {{LAT{{1'b0}}}};
-                    pexp <= {{(LAT*DW){{1'b0}}}};
-                    paddr <= {{(LAT*AW){{1'b0}}}};
-                end else begin
-                    pv <= {{pv[LAT-2:0], push}};
-                    pt <= {{pt[LAT-2:0], finish}};
-                    pexp <= {{pexp[(LAT-1)*DW-1:0], word_now}};
-                    paddr <= {{paddr[(LAT-1)*AW-1:0], addr}};
-                end
-        end
-    endgenerate
-    wire [DW-1:0] diff = pexp[LAT*DW-1 -: DW] ^ mem_rdata;
-    wire mismatch = pv[LAT-1] & (|diff);
-
+{_pipeline(ir)}
     always @(posedge clk or negedge rst_n) begin
         if (!rst_n) begin
             running <= 1'b0;
@@ -371,7 +441,7 @@ module {top} #({params}) (
             fail_addr_r <= {{AW{{1'b0}}}};
             fail_bits_r <= {{DW{{1'b0}}}};
             fail_cycle_r <= 32'd0;
-        end else if (start && !running && !draining) begin
+{_transparent_reset(ir)}        end else if (start && !running && !draining) begin
             running <= 1'b1;
             done_r <= 1'b0;
             fail_r <= 1'b0;
@@ -384,20 +454,14 @@ module {top} #({params}) (
             fail_addr_r <= {{AW{{1'b0}}}};
             fail_bits_r <= {{DW{{1'b0}}}};
             fail_cycle_r <= 32'd0;
-        end else begin
-            if (mismatch && !fail_r) begin
-                fail_r <= 1'b1;
-                fail_addr_r <= paddr[LAT*AW-1 -: AW];
-                fail_bits_r <= diff;
-                fail_cycle_r <= cycle - LAT32;
-            end
-            if (running || draining)
+{_transparent_reset(ir)}        end else begin
+{_compare_update(ir)}            if (running || draining)
                 cycle <= cycle + 32'd1;
             if (draining) begin
                 if (pt[LAT-1]) begin
                     draining <= 1'b0;
                     done_r <= 1'b1;
-                end
+{"                    fail_r <= (sig_p_upd != sig_t_upd);" + chr(10) if ir.transparent else ""}                end
             end
             if (running) begin
                 if (st_delay_step)

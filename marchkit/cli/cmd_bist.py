@@ -30,6 +30,9 @@ def register(sub):
                    help="only assemble TEST into a $readmemh program for the programmable controller")
     g.add_argument("--latency", type=int, default=1, metavar="N",
                    help="memory read latency in clock edges (the LAT parameter's default; 1 to 16, default 1)")
+    g.add_argument("--transparent", action="store_true",
+                   help="transparent test (Nicolaidis 1996): keeps the memory's contents; run 0 predicts a "
+                        "signature, run 1 tests; only fail is reported (fail_addr/bits/cycle stay 0)")
     g.add_argument("--quiet", "-q", action="store_true", help="print nothing on success")
     p.set_defaults(func=run)
 
@@ -48,19 +51,21 @@ def run(args) -> int:
     test = load_test(args.test)
     out = sys.stdout
     if args.program_only:
-        ir, depth = write_program(test, mem, args.output, args.top, args.force)
+        ir, depth = write_program(test, mem, args.output, args.top, args.force, transparent=args.transparent)
         if not args.quiet:
             out.write(f"wrote {args.output}: {len(ir.steps)} instructions (PROG_DEPTH {depth}) for "
                       f"{ir.test_name} on {ir.memory_name} {ir.words}x{ir.dw}, {ir.cycles} cycles\n")
         return 0
-    res = write_bist(test, mem, args.output, args.style, args.top, args.force, args.latency, args.area)
+    res = write_bist(test, mem, args.output, args.style, args.top, args.force, args.latency, args.area,
+                     args.transparent)
     if args.quiet:
         return 0
     ir = res.ir
     mhz = float(ir.clock_hz) / 1e6
     out.write(f"wrote {res.directory}: {', '.join(res.files)} ({res.style} style)\n")
     out.write(f"test: {ir.cycles} cycles, {ir.ops} operations, {format_seconds(ir.seconds)} at {mhz:g} MHz"
-              f" ({ir.runs} background run{'s' if ir.runs != 1 else ''})\n")
+              + (" (transparent: signature prediction, then the test)\n" if ir.transparent else
+                 f" ({ir.runs} background run{'s' if ir.runs != 1 else ''})\n"))
     if res.area is not None:
         a = res.area
         if "skipped" in a:
