@@ -19,6 +19,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from functools import lru_cache
 from fractions import Fraction
 
 from ..errors import InputError
@@ -163,6 +164,7 @@ def lfsr_prev(state: int, width: int, taps) -> int:
     return (state >> 1) | (top << (width - 1))
 
 
+@lru_cache(maxsize=16)
 def _lfsr_order(n: int, seed: int) -> AddressOrder:
     from ..model.orders import LFSR_TAPS
 
@@ -385,6 +387,7 @@ def address_at(ir: BistIR, pos: int) -> int:
     return (lo << i) | (pos >> (aw - i))
 
 
+@lru_cache(maxsize=16)
 def _random_walk(o: AddressOrder, n: int) -> list[int]:
     """The ⇑ addresses as the hardware makes them: from ``up_first``, each next address at most
     ``skip`` LFSR steps on (checked), and the ⇓ walk from ``down_first`` backwards must be its
