@@ -8,7 +8,9 @@ For each style (``fsm``, ``program``) it synthesizes the controller with yosys (
 
 * per test on a 1K × 8 memory (solid background, linear order);
 * per memory size for March C- (the ``program`` controller does not depend on the test: its
-  instruction memory is counted apart, as PROG_DEPTH × 40 bits).
+  instruction memory is counted apart, as PROG_DEPTH × 40 bits);
+* per option (address order, backgrounds, multi-cycle operations, read latency, transparent
+  test) for March C- on 1K × 8.
 
 It also prints the ratio of the two styles and the generation time.  Needs yosys.
 """
@@ -50,11 +52,11 @@ def main() -> None:
     if args.quick:
         tests, sizes = tests[:1], sizes[:1]
 
-    def row(label, test, mem):
+    def row(label, test, mem, **kw):
         out = {}
         for style in ("fsm", "program"):
             t0 = time.perf_counter()
-            ir, files, depth = generate(resolve_test(test), mem, style, "mbist")
+            ir, files, depth = generate(resolve_test(test), mem, style, "mbist", **kw)
             gen = time.perf_counter() - t0
             t0 = time.perf_counter()
             a = synth_area(files, "mbist", style, depth)
@@ -80,6 +82,23 @@ def main() -> None:
     for n, b in sizes:
         mem = make_memory(n, b, name="bench")
         row(f"{n // 1024}K x {b}" if n < (1 << 20) else f"{n >> 20}M x {b}", "March C-", mem)
+    if args.quick:
+        return
+    print()
+    print("Options, March C- on 1K x 8")
+    print(head)
+    for label, mkw, kw in (
+        ("linear, solid", {}, {}),
+        ("gray", {"order": "gray"}, {}),
+        ("complement", {"order": "complement"}, {}),
+        ("random:1 (LFSR)", {"order": "random:1"}, {}),
+        ("checkerboard, mux 4", {"backgrounds": "checkerboard", "mux": 4}, {}),
+        ("word backgrounds (4)", {"backgrounds": "word"}, {}),
+        ("read/write 2 cycles", {"read_cycles": 2, "write_cycles": 2}, {}),
+        ("read latency 2", {"read_cycles": 2, "write_cycles": 2}, {"lat": 2}),
+        ("transparent", {}, {"transparent": True}),
+    ):
+        row(label, "March C-", make_memory(1024, 8, name="bench", **mkw), **kw)
 
 
 if __name__ == "__main__":
