@@ -70,6 +70,11 @@ def testbench(ir: BistIR, top: str, style: str, lat: int = 1) -> str:
             $display("program %0s", file);
         end
 """
+    first = 0
+    for st in ir.steps:
+        if not st.is_delay:
+            break
+        first += st.cycles
     fill = restored = restored_fmt = restored_arg = ""
     if ir.transparent:
         words32 = (ir.dw + 31) // 32
@@ -95,7 +100,8 @@ def testbench(ir: BistIR, top: str, style: str, lat: int = 1) -> str:
         f"on {ir.memory_name} {ir.words}x{ir.dw}; {ir.cycles} cycles, {ir.ops} operations per test.",
     ))
     return head + f"""//   iverilog -o {top}_tb.vvp {top}_tb.v {top}.v && vvp -n {top}_tb.vvp
-// Fault-free (no plusargs): prints "PASS: N cycles" or stops with $fatal.
+// Fault-free (no plusargs): checks the first operation comes in the cycle after start, the
+// test's cycles and operations, no fail; prints "PASS: N cycles" or stops with $fatal.
 // +faults=FILE: one scenario per line (fault primitives, address-decoder faults, initial values;
 //   the layout is in marchkit/bist/testbench.py), prints "scenario I fail F cycle C addr A bits B".
 // +program=FILE: load another program first (program style); +cycles=N +ops=N: its figures
@@ -107,6 +113,9 @@ module {top}_tb;
     localparam WORDS = {ir.words};
     localparam LAT = {lat};
     reg [31:0] CYCLES, OPS, TIMEOUT;      // the test's figures (+cycles=N +ops=N for another program)
+    reg [31:0] FIRST;                     // cycle of the first operation (+first=N; 0 unless a delay comes first)
+    reg [31:0] first_ce;
+    reg busy_at_0;
     localparam PERIOD = {per};
 
     reg clk, rst_n, start;
@@ -144,9 +153,12 @@ module {top}_tb;
             busy_cycles = 0;
             ops = 0;
             waited = 0;
+            busy_at_0 = busy;                 // the cycle after start: cycle 0
+            first_ce = 32'hffffffff;
             while (!done && waited < TIMEOUT) begin
                 if (busy) busy_cycles = busy_cycles + 1;
                 if (mem_ce) ops = ops + 1;
+                if (mem_ce && first_ce == 32'hffffffff) first_ce = waited;
                 @(negedge clk) waited = waited + 1;
             end
         end
@@ -178,6 +190,8 @@ module {top}_tb;
         OPS = 32'd{ir.ops};
         if ($value$plusargs("cycles=%d", CYCLES)) ;
         if ($value$plusargs("ops=%d", OPS)) ;
+        FIRST = 32'd{first};
+        if ($value$plusargs("first=%d", FIRST)) ;
         TIMEOUT = CYCLES + LAT + 16;
 {reload}        if ($value$plusargs("faults=%s", file)) begin
             fd = $fopen(file, "r");
@@ -213,6 +227,8 @@ module {top}_tb;
                 $fatal(1, "FAILED: not done after %0d cycles", waited);
             if (fail)
                 $fatal(1, "FAILED: a fault-free memory failed at cycle %0d, address %0d, bits %h", fail_cycle, fail_addr, fail_bits);
+            if (!busy_at_0 || first_ce != FIRST)
+                $fatal(1, "FAILED: the first operation came in cycle %0d after start, not %0d", first_ce, FIRST);
             if (busy_cycles != CYCLES + LAT)
                 $fatal(1, "FAILED: busy for %0d cycles, the test takes %0d (+ %0d read latency)", busy_cycles, CYCLES, LAT);
             if (ops != OPS)
