@@ -129,7 +129,12 @@ def write_directory(files: dict, outdir, force: bool = False) -> None:
         if out.exists():
             old = Path(tempfile.mkdtemp(prefix=f".{out.name}.", suffix=".old", dir=parent))
             os.rename(out, old / "d")
-            os.rename(tmp, out)
+            try:
+                os.rename(tmp, out)
+            except BaseException:
+                os.rename(old / "d", out)       # put the old directory back
+                shutil.rmtree(old, ignore_errors=True)
+                raise
             shutil.rmtree(old, ignore_errors=True)
         else:
             os.rename(tmp, out)
