@@ -26,6 +26,11 @@ tasks before the first edge; the semantics are those of DEVELOPERS.md ("Semantic
   (address a selects no cell; a read returns ``value`` in every bit), 1 ``alias`` (address b
   selects cell a), 2 ``multi`` (address a selects cells a and b), 3 ``cross`` (both addresses
   select both cells).  A read of several cells returns their bitwise AND; a write writes all.
+* ``set_sof(word, bit)``: stuck-open cell — writes do not reach it; a read returns, for that
+  bit, the sense amplifier's previous value (the last value read in that bit; unknown first).
+* ``set_drf(word, bit, value, tau)``: data-retention fault — the cell, holding ``value``, has
+  lost it when its word is accessed ``tau`` or more cycles after its last access (or after
+  cycle 0); ``now`` counts the cycles (the testbench sets it to 0 in the test's first cycle).
 * ``stuck_at(word, bit, value)``: the stuck-at cell of the exporter's testbench (a one-cell
   state primitive ``<1/0/->`` or ``<0/1/->``).
 * ``set_cell(word, bit, value)`` sets an initial value; ``settle`` applies the state
@@ -131,8 +136,13 @@ module {module} #(parameter AW = {aw}, DW = {dw}, WORDS = {words}, LAT = {lat}) 
     reg [DW-1:0] cells [0:WORDS-1];
     reg [DW-1:0] pipe [0:LAT-1];
     reg [DW-1:0] out;
-    // fault configuration: kind 0 none, 1 primitives, 2 address decoder
+    // fault configuration: kind 0 none, 1 primitives, 2 address decoder, 3 stuck-open,
+    // 4 data retention
     integer kind;
+    reg [DW-1:0] sa;             // sense amplifier: the last word read
+    reg drf_value;
+    integer drf_tau, drf_last;
+    reg [63:0] now;              // cycle count (set by the testbench)
     integer nrules;
     reg [11:0] rules [0:1];
     integer agg_word, agg_bit, vic_word, vic_bit;
@@ -149,6 +159,9 @@ module {module} #(parameter AW = {aw}, DW = {dw}, WORDS = {words}, LAT = {lat}) 
             nrules = 0;
             agg_word = 0; agg_bit = 0; vic_word = 0; vic_bit = 0;
             af_type = 0; af_a = 0; af_b = 0; af_value = 1'b0;
+            sa = {{DW{{1'bx}}}};
+            drf_value = 1'b0; drf_tau = 0; drf_last = 0;
+            now = 64'd0;
             for (i = 0; i < WORDS; i = i + 1)
                 cells[i] = {{DW{{1'bx}}}};
             for (i = 0; i < LAT; i = i + 1)
@@ -180,6 +193,24 @@ module {module} #(parameter AW = {aw}, DW = {dw}, WORDS = {words}, LAT = {lat}) 
         begin
             kind = 2;
             af_type = t; af_a = x; af_b = y; af_value = v;
+        end
+    endtask
+
+    task set_sof;
+        input integer w, b;
+        begin
+            kind = 3;
+            vic_word = w; vic_bit = b;
+        end
+    endtask
+
+    task set_drf;
+        input integer w, b;
+        input v;
+        input integer tau;
+        begin
+            kind = 4;
+            vic_word = w; vic_bit = b; drf_value = v; drf_tau = tau; drf_last = 0;
         end
     endtask
 
@@ -244,6 +275,27 @@ module {module} #(parameter AW = {aw}, DW = {dw}, WORDS = {words}, LAT = {lat}) 
                     else
                         out = cells[addr];
                 end
+            end else if (kind == 3) begin
+                if (wr) begin
+                    pre_v = cells[vic_word][vic_bit];
+                    cells[addr] = data;
+                    if (addr == vic_word)
+                        cells[vic_word][vic_bit] = pre_v;
+                end else begin
+                    out = cells[addr];
+                    if (addr == vic_word)
+                        out[vic_bit] = sa[vic_bit];
+                end
+            end else if (kind == 4) begin
+                if (addr == vic_word) begin
+                    if (cells[vic_word][vic_bit] === drf_value && now - drf_last >= drf_tau)
+                        cells[vic_word][vic_bit] = ~drf_value;
+                    drf_last = now;
+                end
+                if (wr)
+                    cells[addr] = data;
+                else
+                    out = cells[addr];
             end else begin
                 if (!wr)
                     out = cells[addr];
@@ -283,10 +335,13 @@ module {module} #(parameter AW = {aw}, DW = {dw}, WORDS = {words}, LAT = {lat}) 
                     cells[vic_word][vic_bit] = post_value;
                 settle;
             end
+            if (!wr)
+                sa = out;
         end
     endtask
 
     always @(posedge clk) begin
+        now <= now + 64'd1;
         if (ce) begin
             access(a, we, d);
             if (!we)

@@ -180,6 +180,14 @@ def test_fault_free_read_latency_stride_and_lfsr(tmp_path):
 def scenarios(inst, mem):
     """Testbench scenario lines of one instance: one per initial value combination."""
     kind = inst.kind
+    if kind.family == "sof":
+        return [scenario_word(3, vic=divmod(inst.sites[0], mem.bits))]
+    if kind.family == "drf":
+        from marchkit.model import seconds_to_cycles
+
+        tau = seconds_to_cycles(kind.tau, mem.clock_hz)
+        cell = divmod(inst.sites[0], mem.bits)
+        return [scenario_word(4, vic=cell, inits=(0, v), drf_value=kind.drf_value, tau=tau) for v in (0, 1)]
     if kind.family == "af":
         a = inst.sites[0]
         b = inst.sites[1] if len(inst.sites) > 1 else 0
@@ -250,13 +258,14 @@ def cosimulate(d: Path, test, mem, insts, style):
     return [(dd, c if dd else None) for dd, c in zip(det, cyc)]
 
 
-def sample_instances(mem, classes, per_kind, seed):
+def sample_instances(mem, classes, per_kind, seed, retention=("1ms",)):
     from marchkit.faults import select_faults
     from marchkit.faults.catalogue import enumerate_instances, parse_pairs
+    from marchkit.model import parse_duration
 
     rng = random.Random(seed)
     out = []
-    for kind in select_faults(classes).kinds:
+    for kind in select_faults(classes, tuple(parse_duration(t) for t in retention)).kinds:
         pool = list(enumerate_instances(kind, mem, parse_pairs("all")))
         out += rng.sample(pool, min(per_kind, len(pool)))
     return out
@@ -265,14 +274,14 @@ def sample_instances(mem, classes, per_kind, seed):
 FAULT_CASES = [
     # (test, memory, fault classes, instances per kind, seed)
     ("March C-", dict(words=8, bits=2, backgrounds="solid"),
-     "SAF,TF,CFin,CFid,CFst,AF", 3, 1),
+     "SAF,TF,CFin,CFid,CFst,AF,SOF", 3, 1),
     ("March SS", dict(words=4, bits=4, backgrounds="word", order="complement", read_cycles=2),
      "RDF,DRDF,IRF,CFds,CFtr,CFwd,CFrd,CFdrd,CFir,AF", 2, 2),
     ("MATS+", dict(words=16, bits=1, backgrounds="solid,checkerboard", mux=4, order="gray",
                    scramble_bits="3,1,0,2", scramble_xor=6),
      "SAF,TF,CFin,CFid,CFst,AF,RDF,IRF,CFrd,CFds", 2, 3),
     ("IFA-9", dict(words=8, bits=2, backgrounds="rows", mux=2, order="stride:1", clock="200Hz", write_cycles=2),
-     "SAF,TF,CFid,CFst,AF,DRDF,CFdrd,CFir,CFwd", 2, 4),
+     "SAF,TF,CFid,CFst,AF,DRDF,CFdrd,CFir,CFwd,SOF,DRF", 2, 4),
     ("March LR", dict(words=10, bits=1, order="random:4"), "SAF,TF,CFin,CFid,CFst,AF,CFds", 2, 5),
 ]
 
@@ -287,7 +296,8 @@ def test_injected_faults_match_the_reference(tmp_path, case):
     name, mkw, classes, per_kind, seed = FAULT_CASES[case]
     test = resolve_test(name)
     mem = make_memory(**mkw)
-    insts = sample_instances(mem, classes, per_kind, seed)
+    # IFA-9 (two 100 ms delays; 5 ms cycles here): retention times below, at and above a delay
+    insts = sample_instances(mem, classes, per_kind, seed, ("50ms", "100ms", "105ms", "400ms"))
     assert len(insts) >= 50
     ref = reference_verdicts(test, mem, insts)
     got = cosimulate(tmp_path, test, mem, insts, "program")
@@ -314,11 +324,33 @@ def test_injected_faults_fsm_style(tmp_path):
         assert got == want
 
 
+def test_retention_faults_at_every_boundary(tmp_path):
+    """Data-retention faults with τ from 10 to 40 cycles around the 20-cycle delays, every cell
+    and both values: controller == reference, also where an access comes exactly τ after the
+    last one (the boundary the semantics fix: "at least τ")."""
+    from fractions import Fraction
+
+    from marchkit.engine.reference import reference_verdicts
+    from marchkit.faults.catalogue import Instance
+    from marchkit.faults.primitives import drf_kinds
+
+    need_tool("iverilog")
+    test = resolve_test("{⇓(w0); Del(100ms); ⇑(r0,w1); Del(100ms); ⇓(r1,w0,r0)}")
+    mem = make_memory(8, 1, clock="200Hz")          # 5 ms cycles: each delay 20 cycles
+    kinds = drf_kinds([Fraction(c, 200) for c in range(10, 41)])
+    insts = [Instance(k, (c,)) for k in kinds for c in range(8)]
+    ref = reference_verdicts(test, mem, insts)
+    got = cosimulate(tmp_path, test, mem, insts, "program")
+    want = [(d, det.cycle if d else None) for d, det in ref]
+    assert got == want
+    assert 0 < sum(d for d, _ in want) < len(want)
+
+
 def test_injected_instance_count():
     """The issue asks for ≥ 200 injected instances across the classes."""
     total = 0
     for name, mkw, classes, per_kind, seed in FAULT_CASES:
-        total += len(sample_instances(make_memory(**mkw), classes, per_kind, seed))
+        total += len(sample_instances(make_memory(**mkw), classes, per_kind, seed, ("50ms", "100ms", "105ms", "400ms")))
     assert total >= 200
 
 

@@ -17,7 +17,9 @@ word (:func:`scenario_word`):
   victim cell, ``[95:64]`` aggressor word, ``[127:96]`` victim word, ``[143:128]`` aggressor
   bit, ``[159:144]`` victim bit (a one-cell fault gives the victim twice);
 * address decoder: ``[32:31]`` type (0 none, 1 alias, 2 multi, 3 cross), ``[33]`` the value a
-  read of an unselected address returns, ``[95:64]`` word a, ``[127:96]`` word b.
+  read of an unselected address returns, ``[95:64]`` word a, ``[127:96]`` word b;
+* ``[3:0]`` 3 stuck-open cell, 4 data-retention fault: ``[127:96]`` word, ``[159:144]`` bit,
+  ``[30]`` initial value (4 only), ``[33]`` the value the cell loses, ``[63:34]`` τ in cycles.
 
 Cells the fault does not involve start unknown (``x``); a read of an unknown value never
 mismatches (the comparator's ``if`` treats ``x`` as false), as in the fault simulators.
@@ -38,9 +40,16 @@ SCENARIO_DIGITS = 40
 
 
 def scenario_word(kind: int = 0, rules=(), inits=(0, 0), agg=(0, 0), vic=(0, 0),
-                  af_type: int = 0, af_value: int = 0, words=(0, 0)) -> str:
+                  af_type: int = 0, af_value: int = 0, words=(0, 0), drf_value: int = 0,
+                  tau: int = 0) -> str:
     """One line of a ``+faults`` file (see the module text)."""
     w = kind & 0xF
+    if kind in (3, 4):
+        w |= vic[0] << 96 | vic[1] << 144 | (inits[1] & 1) << 30
+        if kind == 4:
+            if not 0 <= tau < (1 << 30):
+                raise ValueError("tau out of range")
+            w |= (drf_value & 1) << 33 | tau << 34
     if kind == 1:
         codes = list(rules)
         if not 1 <= len(codes) <= 2:
@@ -150,6 +159,7 @@ module {top}_tb;
             @(negedge clk) rst_n = 1'b1;
             @(negedge clk) start = 1'b1;
             @(negedge clk) start = 1'b0;
+            mem.now = 64'd0;                  // cycle 0: the test's first cycle
             busy_cycles = 0;
             ops = 0;
             waited = 0;
@@ -176,6 +186,12 @@ module {top}_tb;
                 mem.settle;
             end else if (sc[3:0] == 4'd2)
                 mem.set_af(sc[32:31], sc[95:64], sc[127:96], sc[33]);
+            else if (sc[3:0] == 4'd3)
+                mem.set_sof(sc[127:96], sc[159:144]);
+            else if (sc[3:0] == 4'd4) begin
+                mem.set_drf(sc[127:96], sc[159:144], sc[33], sc[63:34]);
+                mem.set_cell(sc[127:96], sc[159:144], sc[30]);
+            end
         end
     endtask
 
