@@ -346,6 +346,24 @@ def test_retention_faults_at_every_boundary(tmp_path):
     assert 0 < sum(d for d, _ in want) < len(want)
 
 
+def test_stuck_at_plusargs(tmp_path):
+    """The testbench's quick injection (+stuck_word/bit/value) reports the reference's first
+    detection cycle."""
+    from marchkit.engine.reference import reference_verdicts
+    from marchkit.faults.catalogue import Instance
+    from marchkit.faults.primitives import SAF
+
+    need_tool("iverilog")
+    mem = make_memory(16, 4, backgrounds="solid,checkerboard", mux=2)
+    test = resolve_test("March C-")
+    build(tmp_path, test, mem, "program")
+    for word, bit, value in ((5, 2, 1), (0, 0, 0), (15, 3, 0)):
+        kind = SAF[0] if value == 0 else SAF[1]
+        (det, where), = reference_verdicts(test, mem, [Instance(kind, (word * 4 + bit,))])
+        out = run(["vvp", "-n", "sim.vvp", f"+stuck_word={word}", f"+stuck_bit={bit}", f"+stuck_value={value}"], tmp_path)
+        assert f"detected, first at cycle {where.cycle} (address {where.address}," in out, out
+
+
 def test_injected_instance_count():
     """The issue asks for ≥ 200 injected instances across the classes."""
     total = 0

@@ -24,6 +24,9 @@ word (:func:`scenario_word`):
 Cells the fault does not involve start unknown (``x``); a read of an unknown value never
 mismatches (the comparator's ``if`` treats ``x`` as false), as in the fault simulators.
 
+``+stuck_word=W +stuck_bit=B +stuck_value=V`` runs the test once with that cell stuck at V and
+prints ``... detected, first at cycle C (address A, bits B)`` or ``... not detected``.
+
 ``+program=FILE`` (``program`` style) loads another program into the instruction memory first;
 ``+cycles=N +ops=N`` give its figures for the fault-free check.
 """
@@ -113,6 +116,8 @@ def testbench(ir: BistIR, top: str, style: str, lat: int = 1) -> str:
 // test's cycles and operations, no fail; prints "PASS: N cycles" or stops with $fatal.
 // +faults=FILE: one scenario per line (fault primitives, address-decoder faults, initial values;
 //   the layout is in marchkit/bist/testbench.py), prints "scenario I fail F cycle C addr A bits B".
+// +stuck_word=W +stuck_bit=B +stuck_value=V: one stuck-at cell (logical word W); prints whether
+//   and where the controller detected it.
 // +program=FILE: load another program first (program style); +cycles=N +ops=N: its figures
 //   for the fault-free check.  Clock period {per} ps.
 `timescale 1ps/1ps
@@ -148,7 +153,7 @@ module {top}_tb;
     reg [8*1024-1:0] file;
     reg [{SCENARIO_DIGITS * 4 - 1}:0] sc;
     reg [31:0] busy_cycles, ops, waited;
-    integer fd, got, n, bad, w, seed, same;
+    integer fd, got, n, bad, w, seed, same, sw, sb, sv;
     reg [DW-1:0] shadow [0:WORDS-1];
 
     // one test from reset; the SRAM has been configured
@@ -209,7 +214,23 @@ module {top}_tb;
         FIRST = 32'd{first};
         if ($value$plusargs("first=%d", FIRST)) ;
         TIMEOUT = CYCLES + LAT + 16;
-{reload}        if ($value$plusargs("faults=%s", file)) begin
+{reload}        if ($value$plusargs("stuck_word=%d", sw)) begin
+            sb = 0;
+            sv = 0;
+            if ($value$plusargs("stuck_bit=%d", sb)) ;
+            if ($value$plusargs("stuck_value=%d", sv)) ;
+            sc = {{{SCENARIO_DIGITS * 4}{{1'b0}}}};
+            configure;
+            mem.stuck_at(sw, sb, sv[0]);
+            run_test;
+            if (!done)
+                $fatal(1, "FAILED: not done after %0d cycles", waited);
+            if (fail)
+                $display("stuck-at-%0d cell: address %0d bit %0d: detected, first at cycle %0d (address %0d, bits %h)",
+                         sv, sw, sb, fail_cycle, fail_addr, fail_bits);
+            else
+                $display("stuck-at-%0d cell: address %0d bit %0d: not detected", sv, sw, sb);
+        end else if ($value$plusargs("faults=%s", file)) begin
             fd = $fopen(file, "r");
             if (fd == 0)
                 $fatal(1, "cannot open %0s", file);
