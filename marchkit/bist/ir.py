@@ -44,6 +44,7 @@ class OpStep:
     down: bool                # the element runs ⇓ (⇕ runs ⇑, as the exported stimulus does)
     element: int              # index among the test's elements
     first: int                # index of the element's first step
+    notation_order: str = ""  # the element's order as written (up / down / any)
 
     is_delay = False
 
@@ -309,7 +310,7 @@ def lower(test, mem, transparent: bool = False) -> BistIR:
             cmp_first = (not write) and (seen_write or transparent)
             cmp_later = (not write) and (any_write or transparent)
             steps.append(OpStep(write, op.value, op.repeat, cmp_first, cmp_later,
-                                k == len(item.ops) - 1, down, ei, first))
+                                k == len(item.ops) - 1, down, ei, first, item.order))
             seen_write = seen_write or write
     if not steps:
         raise BistError("the test has no operation")

@@ -190,7 +190,8 @@ def _fsm_steps(ir: BistIR, pcw: int, cw: int) -> str:
                        f"st_count = {cw}'d{s.cycles - 1}; st_first = {pcw}'d{i};")
         else:
             op = f"{'w' if s.write else 'r'}{s.value}" + (f"^{s.repeat}" if s.repeat > 1 else "")
-            out.append(f"            {pcw}'d{i}: begin   // element {s.element}, {'down' if s.down else 'up'}, {op}")
+            way = "down" if s.down else ("any, run up" if s.notation_order == "any" else "up")
+            out.append(f"            {pcw}'d{i}: begin   // element {s.element}, {way}, {op}")
             out.append(f"                st_write = 1'b{int(s.write)}; st_value = 1'b{s.value}; "
                        f"st_cmp_first = 1'b{int(s.compare_first)}; st_cmp_later = 1'b{int(s.compare_later)};")
             out.append(f"                st_last_op = 1'b{int(s.last_op)}; st_down = 1'b{int(s.down)}; "
