@@ -10,7 +10,8 @@ usual ones of failure analysis (common practice, no source):
 * ``row`` / ``column`` — three or more failing cells, all in one physical row (column);
 * ``cluster`` — failing cells forming one connected blob (8-neighbourhood, gaps of one cell
   bridged) that is neither a line nor a word;
-* ``whole array`` — failing cells in at least half of the rows and half of the columns;
+* ``whole array`` — a quarter of the cells or more fail, or half of the rows (columns) are
+  failing lines, or the cells outside lines reach half of the rows and half of the columns;
 * ``multiple`` — none of the above: the parts (lines and blobs) are listed.
 
 Every classification also lists its parts: rows and columns holding three or more failing
@@ -160,7 +161,7 @@ def classify(bm: Bitmap) -> Bitmap:
         bm.kind = "cell pair"
         bm.detail = (f"({int(r[0])}, {int(c[0])}) and ({int(r[1])}, {int(c[1])}), "
                      + ("adjacent" if adj else "not adjacent"))
-    elif ur.size >= max(2, bm.rows / 2) and uc.size >= max(2, bm.cols / 2):
+    elif _whole(bm, r, c, in_line, line_rows, line_cols):
         bm.kind = "whole array"
         bm.detail = f"{n} failing cells in {ur.size} of {bm.rows} rows and {uc.size} of {bm.cols} columns"
     elif ur.size == 1:
@@ -180,3 +181,13 @@ def classify(bm: Bitmap) -> Bitmap:
             counts[p.kind] = counts.get(p.kind, 0) + 1
         bm.detail = ", ".join(f"{v} {k}{'s' if v > 1 else ''}" for k, v in counts.items())
     return bm
+
+
+def _whole(bm, r, c, in_line, line_rows, line_cols) -> bool:
+    if r.size >= max(3, bm.rows * bm.cols / 4):
+        return True
+    if line_rows.size >= max(2, bm.rows / 2) or line_cols.size >= max(2, bm.cols / 2):
+        return True
+    rest = ~in_line
+    return (np.unique(r[rest]).size >= max(2, bm.rows / 2)
+            and np.unique(c[rest]).size >= max(2, bm.cols / 2))

@@ -114,6 +114,9 @@ class Diagnosis:
     def exact(self) -> bool:
         return bool(self.candidates) and self.candidates[0].mismatches == 0
 
+    def to_json(self, top: int = 10, members: int = 50) -> dict:
+        return diagnosis_json(self, top, members)
+
 
 # ---------------------------------------------------------------------------------------
 # matching
@@ -415,15 +418,19 @@ def split_hint(tr, diag: Diagnosis, log_map, retention) -> dict | None:
     nothing to split)."""
     from ..engine.trace import Tracer
 
-    target = max(diag.consistent, key=lambda c: (len(c.groups), c.size), default=None)
+    def behaviours(c):
+        # kinds with the same rules at the same sites behave alike under every test
+        return {(tuple(g.kind.rules), g.kind.family, g.kind.af, g.kind.drf_value, g.kind.tau,
+                 tuple(g.sites[0])) for g in c.groups[:MAX_HINT_REPS]}
+
+    # the largest class left that has members of different behaviour (else the largest)
+    left = sorted(diag.consistent, key=lambda c: -c.size)
+    target = next((c for c in left if len(behaviours(c)) > 1), left[0] if left else None)
     if target is None or target.size < 2:
         return None
     reps = target.groups[:MAX_HINT_REPS]
-    # kinds with the same rules at the same sites behave alike under every test
-    behaviours = {(tuple(g.kind.rules), g.kind.family, g.kind.af, g.kind.drf_value, g.kind.tau,
-                   tuple(g.sites[0])) for g in reps}
     base = {"class_rank": target.rank, "class_size": target.size}
-    if len(reps) < 2 or len(behaviours) < 2:
+    if len(reps) < 2 or len(behaviours(target)) < 2:
         return dict(base, element=None, split=[],
                     text="no march element can split it: its members behave the same under every test "
                          "on this memory (same data backgrounds and the same address-order relation)")
@@ -445,10 +452,91 @@ def split_hint(tr, diag: Diagnosis, log_map, retention) -> dict | None:
         return dict(base, element=None, split=[],
                     text="none of the elements tried splits it; a different data background or "
                          "address order may")
-    from ..notation import format_item, parse_notation
+    from ..notation import parse_notation
+    from ..notation.printer import format_item
 
     pretty = "; ".join(format_item(i) for i in parse_notation("{" + best[1] + "}").items)
     part_note = f" (the {len(reps)} behaviours simulated of {len(target.groups)})" if len(target.groups) > len(reps) else ""
     return dict(base, element=pretty, split=best[2],
                 text=f"appending {pretty} splits it into {len(best[2])} classes of "
                      f"{', '.join(map(str, best[2]))}{part_note}")
+
+
+# ---------------------------------------------------------------------------------------
+# JSON
+
+
+def member_json(kind, sites, bits) -> dict:
+    """``{"kind": …, "cells": [[word, bit], …]}``, aggressor first, victim last; an
+    address-decoder fault names words (bit ``null``: the whole word) in the order a, b."""
+    if kind.family == "af":
+        cells = [[int(s), None] for s in sites]
+    else:
+        cells = [[int(s) // bits, int(s) % bits] for s in sites]
+    return {"kind": kind.text, "cells": cells}
+
+
+def member_text(kind, sites, bits) -> str:
+    if kind.family == "af":
+        return f"{kind.text} " + " ".join(f"{n}=w{s}" for n, s in zip("ab", sites))
+
+    def cell(s):
+        w, b = divmod(int(s), bits)
+        return f"w{w}" if bits == 1 else f"w{w}.b{b}"
+
+    if len(sites) == 1:
+        return f"{kind.text} {cell(sites[0])}"
+    return f"{kind.text} a={cell(sites[0])} v={cell(sites[1])}"
+
+
+def compare_json(c, ha, hd, bits) -> dict:
+    """A predicted compare as the log would hold it; ``unknown`` (when some bits are) marks
+    the bits a real chip may return either way (0 in ``observed``)."""
+    out = {"cycle": c.cycle, "address": f"{c.address:0{ha}x}", "expected": f"{c.expected:0{hd}x}",
+           "observed": f"{c.observed:0{hd}x}"}
+    unknown = ~c.known & ((1 << bits) - 1)
+    if unknown:
+        out["unknown"] = f"{unknown:0{hd}x}"
+    return out
+
+
+def diagnosis_json(d: Diagnosis, top: int = 10, members: int = 50, predicted: int = 1000) -> dict:
+    from ..notation import format_notation
+
+    mem = d.memory
+    ha = max(1, (mem.address_bits + 3) // 4)
+    hd = max(1, (mem.bits + 3) // 4)
+    cands = []
+    for c in d.candidates[:top]:
+        ms = [member_json(k, s, mem.bits) for k, s in c.members(members)]
+        b = min(c.groups, key=lambda g: g.mismatches)
+        entry = {"rank": c.rank, "mismatches": c.mismatches, "size": c.size, "members": ms,
+                 "predicted": [compare_json(x, ha, hd, mem.bits) for x in c.best[:predicted]],
+                 "differences": c.diffs,
+                 "initial_values": list(b.best_scenario[0]) if b.best_scenario else []}
+        if len(ms) < c.size:
+            entry["members_listed"] = len(ms)
+        if len(c.best) > predicted:
+            entry["predicted_listed"] = predicted
+        cands.append(entry)
+    cons = d.consistent
+    return {
+        "test": {"name": d.test.name, "notation": format_notation(d.test)},
+        "memory": mem.describe(),
+        "log": {"file": d.log.name, "failing_compares": len(d.log.fails),
+                "failing_cells": len(d.log.cells(mem.bits)), "failing_words": len(d.log.words())},
+        "faults": d.faults_spec,
+        "pairs": d.pairs_spec,
+        "candidates": cands,
+        "resolution": {
+            "classes": len(d.candidates),
+            "candidates": d.total_candidates,
+            "best_mismatches": d.candidates[0].mismatches if d.candidates else None,
+            "exact": d.exact,
+            "classes_left": len(cons),
+            "sizes": [c.size for c in cons],
+        },
+        "hint": d.hint,
+        "bitmap": d.bitmap.to_json(),
+        "notes": d.notes,
+    }

@@ -187,10 +187,10 @@ def parse_fail_log(text: str, name: str = "<fails>", words: int | None = None, b
             raise _err(f"cycle {cyc} is listed twice (first on line {seen[cyc]})", name, text, i, f["cycle"][1])
         seen[cyc] = i
         if check is not None:
-            msg = check.problem(cyc, addr, exp)
-            if msg:
-                col = f["cycle"][1] if not msg.startswith("!") else f["address"][1]
-                raise _err(msg.lstrip("!"), name, text, i, col)
+            got = check.problem(cyc, addr, exp)
+            if got:
+                key, msg = got
+                raise _err(msg, name, text, i, f[key][1])
         fails.append(Fail(cyc, addr, exp, obs, i))
     if not fails:
         raise _err("the fail log lists no failing compares (a passing chip has nothing to diagnose)",
@@ -275,9 +275,15 @@ class CompareTable:
     def _op_at(self, seg, slot):
         return bisect.bisect_right(seg.op_offsets, slot) - 1
 
-    def problem(self, cycle: int, address: int, expected: int) -> str | None:
-        """Why (cycle, address, expected) is not a compare of this test; None if it is.
-        A message starting with ``!`` is about the address."""
+    def problem(self, cycle: int, address: int, expected: int) -> tuple[str, str] | None:
+        """(field at fault, why) when (cycle, address, expected) is not a compare of this
+        test; None when it is."""
+        got = self._problem(cycle, address, expected)
+        if got is None:
+            return None
+        return ("address", got[1:]) if got[0] == "!" else ("expected", got[1:]) if got[0] == "$" else ("cycle", got)
+
+    def _problem(self, cycle, address, expected):
         total = self.sched.cycles
         if cycle >= total:
             return f"cycle {cycle} is beyond the end of the test ({total} cycles, 0..{total - 1})"
@@ -302,7 +308,7 @@ class CompareTable:
             return (f"!cycle {cycle} of this test compares address {a:#x}, not {address:#x}: "
                     "is the log from another test, memory or address order?")
         if exp != expected:
-            return (f"cycle {cycle} of this test expects {exp:#x} at address {a:#x}, the log says {expected:#x}: "
+            return (f"$cycle {cycle} of this test expects {exp:#x} at address {a:#x}, the log says {expected:#x}: "
                     "is the log from another test or data background?")
         return None
 
