@@ -161,15 +161,15 @@ def classify(bm: Bitmap) -> Bitmap:
         bm.kind = "cell pair"
         bm.detail = (f"({int(r[0])}, {int(c[0])}) and ({int(r[1])}, {int(c[1])}), "
                      + ("adjacent" if adj else "not adjacent"))
-    elif _whole(bm, r, c, in_line, line_rows, line_cols):
-        bm.kind = "whole array"
-        bm.detail = f"{n} failing cells in {ur.size} of {bm.rows} rows and {uc.size} of {bm.cols} columns"
     elif ur.size == 1:
         bm.kind = "row"
         bm.detail = f"{n} failing cells in row {int(ur[0])}" + (" (the whole row)" if n == bm.cols else "")
     elif uc.size == 1:
         bm.kind = "column"
         bm.detail = f"{n} failing cells in column {int(uc[0])}" + (" (the whole column)" if n == bm.rows else "")
+    elif _whole(bm, r, c, in_line, line_rows, line_cols):
+        bm.kind = "whole array"
+        bm.detail = f"{n} failing cells in {ur.size} of {bm.rows} rows and {uc.size} of {bm.cols} columns"
     elif len(bm.parts) == 1 and bm.parts[0].kind == "cluster":
         bm.kind = "cluster"
         p = bm.parts[0]

@@ -289,8 +289,20 @@ def candidate_groups(tr, kinds, scope, cells, words, notes):
 # the diagnosis
 
 
-def _simulate(tr, g: Group, log_map):
-    g.syndromes = tr.syndromes(g.rep)
+def _behaviour(kind, sites):
+    """Kinds with the same rules (SA1 and <0/1/->, CFid<↑;1> and <0w1;0/1/->) at the same
+    sites behave alike under every test."""
+    return (kind.family, kind.rules, kind.af, kind.drf_value, kind.tau, tuple(int(s) for s in sites))
+
+
+def _simulate(tr, g: Group, log_map, cache=None):
+    key = _behaviour(g.kind, g.sites[0])
+    if cache is not None and key in cache:
+        g.syndromes = cache[key]
+    else:
+        g.syndromes = tr.syndromes(g.rep)
+        if cache is not None:
+            cache[key] = g.syndromes
     g.signature = frozenset(c for _, c in g.syndromes)
     best = None
     for scen, comps in g.syndromes:
@@ -332,10 +344,11 @@ def diagnose(test, mem, log, faults: str = "all", pairs: str = "neighbours", ret
     groups = candidate_groups(tr, selection.kinds, scope, cells, words, notes)
     kept: list[Group] = []
     dropped = 0
+    cache: dict = {}
     for i, g in enumerate(groups):
         if progress:
             progress(i, len(groups))
-        _simulate(tr, g, log_map)
+        _simulate(tr, g, log_map, cache)
         if g.kind.family == "af" and g.size > 1:
             # the partner word is the non-failing one; if the test would see it fail, the
             # members are not one class (each fails at its own address)
@@ -344,7 +357,7 @@ def diagnose(test, mem, log, faults: str = "all", pairs: str = "neighbours", ret
                 if g.size <= AF_SPLIT_LIMIT:
                     for row in g.sites:
                         h = Group(g.kind, row[None, :].copy())
-                        _simulate(tr, h, log_map)
+                        _simulate(tr, h, log_map, cache)
                         kept.append(h)
                 else:
                     dropped += g.size
@@ -419,9 +432,7 @@ def split_hint(tr, diag: Diagnosis, log_map, retention) -> dict | None:
     from ..engine.trace import Tracer
 
     def behaviours(c):
-        # kinds with the same rules at the same sites behave alike under every test
-        return {(tuple(g.kind.rules), g.kind.family, g.kind.af, g.kind.drf_value, g.kind.tau,
-                 tuple(g.sites[0])) for g in c.groups[:MAX_HINT_REPS]}
+        return {_behaviour(g.kind, g.sites[0]) for g in c.groups[:MAX_HINT_REPS]}
 
     # the largest class left that has members of different behaviour (else the largest)
     left = sorted(diag.consistent, key=lambda c: -c.size)
