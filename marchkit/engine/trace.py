@@ -74,7 +74,7 @@ class _Recorder(Run):
                     data = [x ^ v for x in bgw]
                     t = base + seg.op_offsets[k]
                     got = self.access(w, kind, data, t)
-                    if got is None or (si, k) not in ctx.determined:
+                    if got is None or got == data or (si, k) not in ctx.determined:
                         continue
                     exp = obs = known = 0
                     odd = False
