@@ -417,8 +417,11 @@ def test_json_contract_and_terminal_view(tmp_path, cli, monkeypatch):
 
 
 def test_hint_splits_a_class_with_an_extra_element():
-    """March C- cannot tell a transition fault from some of the couplings onto that cell in
-    one log; the hint names an element whose re-simulation separates them."""
+    """MATS+ {⇕(w0); ⇑(r0,w1); ⇓(r1,w0)} (Abadir & Reghbati 1983) targets stuck-at and
+    decoder faults; a log of an up-transition fault leaves a large class of single-cell and
+    coupling faults that fail the same r1.  The hint names an element that splits it; the
+    claim (the sizes of the parts) is re-checked here by simulating every member under the
+    extended test directly."""
     from marchkit.diagnose.diagnosis import _extended
     from marchkit.faults import TF
 
@@ -429,19 +432,51 @@ def test_hint_splits_a_class_with_an_extra_element():
     lines = [c for c in tr.compares(inst, (0,)) if c.definite]
     log = parse_fail_log(fail_log_csv(lines, mem), "x", 16, 1, CompareTable(test, mem))
     d = diagnose(test, mem, log)
-    assert d.hint is not None
-    if d.hint["element"]:
-        # re-check the claim independently: extend the test and see the members' syndromes differ
-        t2 = _extended(test, _ascii(d.hint["element"]))
-        tr2 = Tracer(t2, mem)
-        target = max(d.consistent, key=lambda c: c.size)
-        sigs = {frozenset(tuple(cs) for _, cs in tr2.syndromes(Instance(k, s))) for k, s in target.members()}
-        assert len(sigs) >= 2
-        assert sum(d.hint["split"]) <= target.size
+    target = max(d.consistent, key=lambda c: c.size)
+    assert ("<0w1/0/->", (6,)) in _members(target) and ("SA0", (6,)) in _members(target)
+    assert d.hint["element"] and len(d.hint["split"]) >= 2
+    t2 = _extended(test, _ascii(d.hint["element"]))
+    assert len(t2.elements) == len(test.elements) + 1
+    tr2 = Tracer(t2, mem)
+    parts: dict = {}
+    for k, sites in target.members():
+        sig = frozenset(cs for _, cs in tr2.syndromes(Instance(k, sites)))
+        parts[sig] = parts.get(sig, 0) + 1
+    assert sorted(parts.values(), reverse=True) == d.hint["split"]
+    # an up-transition fault and a stuck-at-0 cell stay together under any element: after the
+    # first write of 0 neither cell ever holds 1 again, so no read can tell them apart
+    from marchkit.faults import SAF
+
+    assert (frozenset(cs for _, cs in tr2.syndromes(Instance(TF[0], (6,))))
+            == frozenset(cs for _, cs in tr2.syndromes(Instance(SAF[0], (6,)))))
 
 
 def _ascii(pretty: str) -> str:
     return (pretty.replace("⇑", "up").replace("⇓", "down").replace("⇕", "any").replace("Del", "del"))
+
+
+def test_json_lines_logs_read_like_csv(tmp_path, cli):
+    from marchkit.faults import SAF
+
+    test = resolve_test("March C-")
+    mem = make_memory(words=32, bits=4)
+    tr = Tracer(test, mem)
+    lines = [c for c in tr.compares(Instance(SAF[0], (4 * 9 + 3,)), (1,)) if c.definite]
+    f = tmp_path / "fails.jsonl"
+    f.write_text("".join(json.dumps({"cycle": c.cycle, "address": f"{c.address:02x}", "expected": f"{c.expected:x}",
+                                     "observed": f"{c.observed:x}"}) + "\n" for c in lines))
+    g = tmp_path / "fails.csv"
+    g.write_text(fail_log_csv(lines, mem))
+    outs = []
+    for path in (f, g):
+        code, out, err = cli("diagnose", "March C-", "--words", "32", "--bits", "4", "--fails", str(path), "--json",
+                             "--no-hint")
+        assert code == 0, err
+        res = json.loads(out)
+        res.pop("log")
+        outs.append(res)
+    assert outs[0] == outs[1]
+    assert {"kind": "SA0", "cells": [[9, 3]]} in outs[0]["candidates"][0]["members"] + outs[0]["candidates"][1]["members"]
 
 
 def test_equivalent_kinds_share_a_class():
