@@ -80,7 +80,7 @@ def generate_log(test, mem, inst, inits, rng):
     array (oracle semantics, ⇕ ascending as exported); unknown read bits at random."""
     plan = Plan(test, mem)
     ctx = full_context(test, mem, plan.sched)
-    run = Run(ctx, inst, tuple(inits), (True,) * ctx.n_any)
+    run = Run(ctx, inst, tuple(inits))
     bits = mem.bits
     out = []
     key = visit = None
@@ -91,7 +91,7 @@ def generate_log(test, mem, inst, inits, rng):
             continue
         k = (v.run, v.element, v.op, v.address)
         if (v.run, v.element, v.address) != visit:
-            run.prev = None                  # a new address visit
+            run.fault.visit(run, v.address)  # a new address visit
             visit = (v.run, v.element, v.address)
         if k != key:                         # the first cycle of an operation: apply it
             key = k

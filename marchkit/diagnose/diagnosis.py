@@ -6,8 +6,10 @@ Method (single-fault assumption, the usual one of march-test diagnosis):
 2. Candidates are the fault instances that could make those cells fail: every single-cell
    kind on each failing cell (static and dynamic primitives, SAF, TF, SOF, DRF), every
    two-cell kind with the failing cell as victim and an aggressor from the pair scope
-   (physical neighbours, the same word, all cells or a sample), and the address-decoder kinds
-   on each failing word with a partner word from the scope.
+   (physical neighbours, the same word, all cells or a sample), and the kinds of families on
+   words (address decoder) on each failing word with a partner word from the scope.  Families
+   come from the registry (:mod:`marchkit.faults.registry`); kinds with more than two sites are
+   not diagnosed yet (a note says so).
 3. Each candidate is simulated (:class:`marchkit.engine.trace.Tracer`: the oracle semantics,
    every failing compare, on the projected words) for each initial value of its cells, with
    every ⇕ element ascending as the exported stimulus runs it.  A real chip has one initial
@@ -20,8 +22,10 @@ Method (single-fault assumption, the usual one of march-test diagnosis):
 
 Aggressors (and address-decoder partners) that sit in the same relation to the victim — not
 in its word, on the same side of it in the address order, the same background bits in every
-run — behave identically (the fast engine's key, DEVELOPERS.md), so one representative is
-simulated per such group and the group joins its class whole.  That makes ``--pairs all``
+run — behave identically (the key of the fast paths of the primitives and decoder families,
+DEVELOPERS.md; a new two-site family must behave the same way to be diagnosed by this
+grouping), so one representative is simulated per such group and the group joins its class
+whole.  That makes ``--pairs all``
 affordable on large arrays, and it is exact.
 
 The hint for splitting the largest class appends one candidate march element (after the
@@ -235,6 +239,13 @@ def _groups_by_key(keys, others):
     return [others[order[bounds[i]:bounds[i + 1]]] for i in range(uk.size)]
 
 
+def _on_words(kind) -> bool:
+    """True for families whose sites are words (address decoder), False for cells."""
+    from ..faults import family_of
+
+    return family_of(kind).site == "words"
+
+
 def candidate_groups(tr, kinds, scope, cells, words, notes):
     """The candidate groups (not yet simulated) for failing ``cells`` (flat indices) and
     failing ``words``."""
@@ -242,10 +253,14 @@ def candidate_groups(tr, kinds, scope, cells, words, notes):
     bits = mem.bits
     groups: list[Group] = []
     sample_cache: dict = {}
-    single = [k for k in kinds if k.family != "af" and k.arity == 1]
-    pair = [k for k in kinds if k.family == "rules" and k.arity == 2]
-    af1 = [k for k in kinds if k.family == "af" and k.arity == 1]
-    af2 = [k for k in kinds if k.family == "af" and k.arity == 2]
+    single = [k for k in kinds if not _on_words(k) and k.arity == 1]
+    pair = [k for k in kinds if not _on_words(k) and k.arity == 2]
+    af1 = [k for k in kinds if _on_words(k) and k.arity == 1]
+    af2 = [k for k in kinds if _on_words(k) and k.arity == 2]
+    more = sorted({k.text for k in kinds if k.arity > 2})
+    if more:
+        notes.append(f"kinds with more than two sites are not diagnosed yet: {', '.join(more[:5])}"
+                     + (" …" if len(more) > 5 else ""))
     for v in cells:
         for k in single:
             groups.append(Group(k, np.array([[v]], dtype=np.int64)))
@@ -292,7 +307,8 @@ def candidate_groups(tr, kinds, scope, cells, words, notes):
 def _behaviour(kind, sites):
     """Kinds with the same rules (SA1 and <0/1/->, CFid<↑;1> and <0w1;0/1/->) at the same
     sites behave alike under every test."""
-    return (kind.family, kind.rules, kind.af, kind.drf_value, kind.tau, tuple(int(s) for s in sites))
+    return (kind.family, kind.rules, kind.af, kind.drf_value, kind.tau, kind.params,
+            tuple(int(s) for s in sites))
 
 
 def _simulate(tr, g: Group, log_map, cache=None):
@@ -349,7 +365,7 @@ def diagnose(test, mem, log, faults: str = "all", pairs: str = "neighbours", ret
         if progress:
             progress(i, len(groups))
         _simulate(tr, g, log_map, cache)
-        if g.kind.family == "af" and g.size > 1:
+        if _on_words(g.kind) and g.size > 1:
             # the partner word is the non-failing one; if the test would see it fail, the
             # members are not one class (each fails at its own address)
             col = 1 if int(g.sites[0, 0]) in words else 0
@@ -480,7 +496,7 @@ def split_hint(tr, diag: Diagnosis, log_map, retention) -> dict | None:
 def member_json(kind, sites, bits) -> dict:
     """``{"kind": …, "cells": [[word, bit], …]}``, aggressor first, victim last; an
     address-decoder fault names words (bit ``null``: the whole word) in the order a, b."""
-    if kind.family == "af":
+    if _on_words(kind):
         cells = [[int(s), None] for s in sites]
     else:
         cells = [[int(s) // bits, int(s) % bits] for s in sites]
@@ -488,7 +504,7 @@ def member_json(kind, sites, bits) -> dict:
 
 
 def member_text(kind, sites, bits) -> str:
-    if kind.family == "af":
+    if _on_words(kind):
         return f"{kind.text} " + " ".join(f"{n}=w{s}" for n, s in zip("ab", sites))
 
     def cell(s):

@@ -6,11 +6,11 @@ each ⇕ element runs in), every compared read that returns something other than
 word, at the cycle the exported stimulus compares it (``marchkit.export``: the last cycle of
 the read).
 
-The behaviour is the oracle's (:class:`marchkit.engine.core.Run`, the semantics in
-DEVELOPERS.md), run on the *projected* words only: the words the instance involves, plus for
-a stuck-open cell the words whose reads can leave a value in the sense amplifier before one
-of its reads (the words next to it in the address order and the first and last words of the
-order).  Every other word is fault free and its reads never fail, so the projection gives
+The behaviour is the oracle's (:class:`marchkit.engine.core.Run` with the family's oracle
+from the registry, the semantics in DEVELOPERS.md), run on the *projected* words only: the
+words the instance involves, plus, for a family whose oracle returns the sense amplifier's
+value (stuck-open), the words whose reads can leave a value in it before one of its reads
+(the words next to it in the address order and the first and last words of the order).  Every other word is fault free and its reads never fail, so the projection gives
 exactly the compares the whole array gives (the tests check this against the full array);
 times come from each word's rank in the full order, so a 1 Mbit array costs no more than a
 small one.
@@ -53,19 +53,20 @@ class Compare:
 class _Recorder(Run):
     """A :class:`Run` that goes on after the first detection and records every compare."""
 
-    def collect(self) -> list[Compare]:
+    def collect(self, any_up) -> list[Compare]:
         ctx = self.ctx
         out: list[Compare] = []
         rc1 = ctx.mem.read_cycles - 1
         n1 = ctx.n - 1
+        fault = self.fault
         for si, seg in enumerate(ctx.sched.segments):
             if seg.element is None:
                 continue
-            up = seg.order == "up" or (seg.order == "any" and self.any_up[ctx.any_index[seg.element]])
+            up = seg.order == "up" or (seg.order == "any" and any_up[ctx.any_index[seg.element]])
             words = ctx.words_up if up else ctx.words_down
             bg = ctx.bg[seg.run]
             for w in words:
-                self.prev = None
+                fault.visit(self, w)          # a new visit of the word
                 pos = ctx.rank[w] if up else n1 - ctx.rank[w]
                 base = seg.start + pos * seg.per_address
                 bgw = bg[w]
@@ -92,6 +93,15 @@ class _Recorder(Run):
         return out
 
 
+def reads_sense_amplifier(kind) -> bool:
+    """True when the family's oracle returns what the sense amplifier holds (so the words
+    read before the instance's words matter); an oracle says so with a class attribute
+    ``reads_sense_amplifier = True`` on its ``Fault``."""
+    from .registry import oracle
+
+    return bool(getattr(oracle(kind).Fault, "reads_sense_amplifier", False))
+
+
 class Tracer:
     """Failing compares of single instances of faults for one test on one memory.
 
@@ -115,20 +125,22 @@ class Tracer:
     # ---- the projection --------------------------------------------------------------
     def words_of(self, inst) -> tuple[int, ...]:
         """The words the projected simulation of ``inst`` needs, in ⇑ order."""
+        from ..faults import family_of
+
         kind = inst.kind
-        if kind.family == "af":
-            words = set(inst.sites)
-        else:
-            words = {s // self.mem.bits for s in inst.sites}
-        if kind.family == "sof":
-            (w,) = words
-            r = int(self.rank[w])
+        words = {int(w) for w in family_of(kind).site_words(inst, self.mem)}
+        if reads_sense_amplifier(kind):
+            # the last read before a read of one of its words is of that word, of the word
+            # next to it in this element's order, or (first visit of an element) of the
+            # first or last word of the order
             words |= {int(self.order[0]), int(self.order[-1])}
-            if r > 0:
-                words.add(int(self.order[r - 1]))
-            if r < self.n - 1:
-                words.add(int(self.order[r + 1]))
-        return tuple(sorted((int(w) for w in words), key=lambda w: self.rank[w]))
+            for w in list(words):
+                r = int(self.rank[w])
+                if r > 0:
+                    words.add(int(self.order[r - 1]))
+                if r < self.n - 1:
+                    words.add(int(self.order[r + 1]))
+        return tuple(sorted(words, key=lambda w: self.rank[w]))
 
     def context(self, words) -> Context:
         words = tuple(words)
@@ -160,7 +172,7 @@ class Tracer:
         ctx = self.context(self.words_of(inst) if words is None else words)
         if any_up is None:
             any_up = (True,) * self.any_count
-        return _Recorder(ctx, inst, tuple(inits), tuple(any_up)).collect()
+        return _Recorder(ctx, inst, tuple(inits)).collect(tuple(any_up))
 
     def syndromes(self, inst, canonical: bool = True) -> list[tuple[tuple, tuple[Compare, ...]]]:
         """[(scenario, compares)] for every scenario of :meth:`scenarios`."""
