@@ -55,31 +55,27 @@ class _Recorder(Run):
 
     def collect(self, any_up) -> list[Compare]:
         ctx = self.ctx
+        plan = _plan(ctx)
         out: list[Compare] = []
         rc1 = ctx.mem.read_cycles - 1
         n1 = ctx.n - 1
         fault = self.fault
-        for si, seg in enumerate(ctx.sched.segments):
-            if seg.element is None:
-                continue
+        access = self.access
+        for si, seg, ops, data in plan:
             up = seg.order == "up" or (seg.order == "any" and any_up[ctx.any_index[seg.element]])
             words = ctx.words_up if up else ctx.words_down
-            bg = ctx.bg[seg.run]
             for w in words:
                 fault.visit(self, w)          # a new visit of the word
-                pos = ctx.rank[w] if up else n1 - ctx.rank[w]
-                base = seg.start + pos * seg.per_address
-                bgw = bg[w]
-                for k, kind in enumerate(seg.op_kinds):
-                    v = seg.op_values[k]
-                    data = [x ^ v for x in bgw]
-                    t = base + seg.op_offsets[k]
-                    got = self.access(w, kind, data, t)
-                    if got is None or got == data or (si, k) not in ctx.determined:
+                base = seg.start + (ctx.rank[w] if up else n1 - ctx.rank[w]) * seg.per_address
+                dw = data[w]
+                for kind, v, off, compared in ops:
+                    d = dw[v]
+                    got = access(w, kind, d, base + off)
+                    if got is None or not compared or got == d:
                         continue
                     exp = obs = known = 0
                     odd = False
-                    for i, (o, e) in enumerate(zip(got, data)):
+                    for i, (o, e) in enumerate(zip(got, d)):
                         exp |= e << i
                         if o == X:
                             odd = True
@@ -89,8 +85,29 @@ class _Recorder(Run):
                         if o != e:
                             odd = True
                     if odd:
-                        out.append(Compare(t + rc1, w, exp, obs, known))
+                        out.append(Compare(base + off + rc1, w, exp, obs, known))
         return out
+
+
+def _plan(ctx):
+    """Per element segment: (index, segment, [(kind, value, offset, compared)], data) with
+    ``data[word][value]`` the fault-free word a ``w{value}``/``r{value}`` carries; cached on
+    the context."""
+    plan = getattr(ctx, "_trace_plan", None)
+    if plan is None:
+        plan = []
+        per_run: dict[int, dict] = {}
+        for si, seg in enumerate(ctx.sched.segments):
+            if seg.element is None:
+                continue
+            ops = [(kind, v, off, (si, k) in ctx.determined)
+                   for k, (kind, v, off) in enumerate(zip(seg.op_kinds, seg.op_values, seg.op_offsets))]
+            if seg.run not in per_run:
+                per_run[seg.run] = {w: ([x for x in bgw], [1 - x for x in bgw])
+                                    for w, bgw in ((w, ctx.bg[seg.run][w]) for w in ctx.words_up)}
+            plan.append((si, seg, ops, per_run[seg.run]))
+        ctx._trace_plan = plan
+    return plan
 
 
 def reads_sense_amplifier(kind) -> bool:
