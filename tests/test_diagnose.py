@@ -569,3 +569,24 @@ def test_many_failing_words_say_no_single_fault_explains(tmp_path):
     assert any("no single candidate can explain" in n for n in d.notes)
     assert d.bitmap.kind == "column"             # 16 words × 1 bit, mux 1: one column
     assert d.candidates[0].mismatches > 0
+
+
+def test_the_shipped_example_log(cli, monkeypatch):
+    """examples/kestrel_die12_fails.csv is the log of an idempotent coupling fault
+    CFid<↑;1> (aggressor w614.b9, victim w613.b9: physical neighbours, one row apart) under
+    March C- on the example memory; the README's command must name it in the exact class."""
+    from pathlib import Path
+
+    root = Path(__file__).resolve().parents[1]
+    monkeypatch.chdir(root)
+    code, out, err = cli("diagnose", "March C-", "--memory", "examples/kestrel_l1_sram.toml",
+                         "--fails", "examples/kestrel_die12_fails.csv", "--json", "--no-hint")
+    assert code == 0, err
+    res = json.loads(out)
+    first = res["candidates"][0]
+    assert first["mismatches"] == 0 and first["rank"] == 1
+    assert {"kind": "CFid<↑;1>", "cells": [[614, 9], [613, 9]]} in first["members"]
+    assert res["resolution"]["classes_left"] == 1
+    code, out, err = cli("repair", "--bitmap", "examples/kestrel_die31_bitmap.csv", "--rows", "256", "--cols", "64",
+                         "--spare-rows", "4", "--spare-cols", "4", "--json")
+    assert code == 0 and json.loads(out)["repairable"]

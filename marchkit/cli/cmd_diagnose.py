@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import json
-import sys
 
 
 def register(sub):
@@ -111,7 +110,9 @@ def show(d, con, top=10, members=6) -> None:
     cons = d.consistent
     if cons:
         best = cons[0].mismatches
-        how = "match the log exactly" if best == 0 else f"are nearest ({best} mismatch{'es' if best != 1 else ''})"
+        one = len(cons) == 1
+        how = (("matches" if one else "match") + " the log exactly" if best == 0
+               else ("is" if one else "are") + f" nearest ({best} mismatch{'es' if best != 1 else ''})")
         sizes = ", ".join(f"{c.size:,}" for c in cons[:12]) + (" …" if len(cons) > 12 else "")
         con.print(f"resolution  {len(cons)} class{'es' if len(cons) != 1 else ''} {how}, of sizes {sizes}; "
                   f"{len(d.candidates):,} classes and {d.total_candidates:,} candidate faults considered")
