@@ -46,6 +46,7 @@ from ..faults import Instance, parse_pairs, select_faults
 from .bitmap import bitmap_from_cells
 
 MAX_CELLS = 64          # failing cells for which candidates are generated
+MAX_CELLS_SPREAD = 16   # … when they spread over more words than one instance can touch
 MAX_HINT_REPS = 24      # members simulated per candidate element when looking for a split
 AF_SPLIT_LIMIT = 32     # an AF partner group that the test itself would tell apart is expanded up to this
 
@@ -352,9 +353,10 @@ def diagnose(test, mem, log, faults: str = "all", pairs: str = "neighbours", ret
         notes.append(f"the log fails in {len(words)} words; one fault instance of the listed kinds "
                      "touches at most two words, so no single candidate can explain every fail "
                      "(several defects, or a defect outside the fault models: see the bitmap class)")
-    if len(cells) > MAX_CELLS:
-        notes.append(f"{len(cells)} failing cells: candidates were generated for the first {MAX_CELLS} only")
-        cells = cells[:MAX_CELLS]
+    limit = MAX_CELLS if len(words) <= 2 else MAX_CELLS_SPREAD
+    if len(cells) > limit:
+        notes.append(f"{len(cells)} failing cells: candidates were generated for the first {limit} only")
+        cells = cells[:limit]
         words = sorted({c // mem.bits for c in cells})
     log_map = {f.cycle: f for f in log.fails}
     groups = candidate_groups(tr, selection.kinds, scope, cells, words, notes)
