@@ -93,11 +93,17 @@ def bench_repair(repeat: int) -> list[tuple[str, float]]:
         c = np.concatenate([along() for _ in rows] + [np.repeat(cols, per)] + [rng.integers(0, n, extra)])
         return r, c
 
+    def block_plus():
+        r, c = lines_plus(5, 5, 0)
+        br, bc = np.nonzero(rng.random((6, 6)) < 0.2)
+        return np.concatenate([r, 300 + br * 7]), np.concatenate([c, 200 + bc * 5])
+
     cases = [
         ("5 rows + 5 columns + 4 cells", lines_plus(5, 5, 4)),
         ("9 rows + 5 columns + 4 cells", lines_plus(9, 5, 4)),
         ("8 rows + 8 columns", lines_plus(8, 8, 0)),
         ("10^4 random cells", (rng.integers(0, n, 10_000), rng.integers(0, n, 10_000))),
+        ("5 rows + 5 columns + a 6×6 block at 20 % (branch and bound)", block_plus()),
     ]
     out = []
     for label, (r, c) in cases:
@@ -107,7 +113,7 @@ def bench_repair(repeat: int) -> list[tuple[str, float]]:
             plan = plan_repair(r, c, n, n, 8, 8)
             times.append(time.perf_counter() - t0)
         verdict = (f"repairable with {plan.spares_used} spares" if plan.repairable else "not repairable")
-        out.append((f"repair 1024×1024, {plan.fails} fails, 8+8 spares, {label}: {verdict}",
+        out.append((f"repair 1024², {plan.fails} fails, 8+8, {label}: {verdict} ({plan.nodes} nodes)",
                     statistics.median(times)))
     return out
 
