@@ -125,5 +125,8 @@ def show(d, con, top=10, members=6) -> None:
     if d.hint:
         con.print(f"hint        class of rank {d.hint['class_rank']} with {d.hint['class_size']:,} faults: "
                   f"{d.hint['text']}")
+        for alt in d.hint.get("alternatives", [])[:3]:
+            con.print(f"            or {alt['element']}: {len(alt['split'])} classes of "
+                      f"{', '.join(map(str, alt['split']))}")
     for n in d.notes:
         con.print(f"[yellow]note[/yellow]        {n}")

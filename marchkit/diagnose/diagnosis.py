@@ -429,7 +429,7 @@ def extra_elements(retention) -> list[str]:
                 out.append(f"{order}({b.format(s=s, t=t)})")
         for tau in retention:
             out.append(f"del({format_seconds(tau)}); up(r{s})")
-    return out
+    return list(dict.fromkeys(out))
 
 
 def _extended(test, extra):
@@ -463,7 +463,7 @@ def split_hint(tr, diag: Diagnosis, log_map, retention) -> dict | None:
         return dict(base, element=None, split=[],
                     text="no march element can split it: its members behave the same under every test "
                          "on this memory (same data backgrounds and the same address-order relation)")
-    best = None
+    tried = []
     for extra in extra_elements(retention):
         t2 = _extended(tr.test, extra)
         if t2 is None:
@@ -474,20 +474,25 @@ def split_hint(tr, diag: Diagnosis, log_map, retention) -> dict | None:
             sig = frozenset(c for _, c in tr2.syndromes(g.rep))
             parts[sig] = parts.get(sig, 0) + g.size
         sizes = sorted(parts.values(), reverse=True)
-        score = (len(sizes), -sizes[0], -len(extra))
-        if best is None or score > best[0]:
-            best = (score, extra, sizes)
-    if best is None or len(best[2]) < 2:
-        return dict(base, element=None, split=[],
-                    text="none of the elements tried splits it; a different data background or "
-                         "address order may")
+        tried.append(((len(sizes), -sizes[0], -len(extra)), extra, sizes))
+    tried.sort(key=lambda x: x[0], reverse=True)
+    splitting = [x for x in tried if len(x[2]) > 1]
+    if not splitting:
+        return dict(base, element=None, split=[], alternatives=[], tried=len(tried),
+                    text=f"none of the {len(tried)} elements tried splits it; a different data background "
+                         "or address order may")
     from ..notation import parse_notation
     from ..notation.printer import format_item
 
-    pretty = "; ".join(format_item(i) for i in parse_notation("{" + best[1] + "}").items)
-    part_note = f" (the {len(reps)} behaviours simulated of {len(target.groups)})" if len(target.groups) > len(reps) else ""
-    return dict(base, element=pretty, split=best[2],
-                text=f"appending {pretty} splits it into {len(best[2])} classes of "
+    def pretty(extra):
+        return "; ".join(format_item(i) for i in parse_notation("{" + extra + "}").items)
+
+    best = splitting[0]
+    alts = [{"element": pretty(x[1]), "split": x[2]} for x in splitting[1:4]]
+    part_note = (f" (simulated for the first {len(reps)} of its {len(target.groups)} candidate groups)"
+                 if len(target.groups) > len(reps) else "")
+    return dict(base, element=pretty(best[1]), split=best[2], alternatives=alts, tried=len(tried),
+                text=f"appending {pretty(best[1])} splits it into {len(best[2])} classes of "
                      f"{', '.join(map(str, best[2]))}{part_note}")
 
 
