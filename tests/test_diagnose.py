@@ -590,3 +590,35 @@ def test_the_shipped_example_log(cli, monkeypatch):
     code, out, err = cli("repair", "--bitmap", "examples/kestrel_die31_bitmap.csv", "--rows", "256", "--cols", "64",
                          "--spare-rows", "4", "--spare-cols", "4", "--json")
     assert code == 0 and json.loads(out)["repairable"]
+
+
+@pytest.mark.parametrize("scope", ["sample:400:9", "word", "neighbours,word"])
+def test_other_pair_scopes_find_the_injected_pair(scope):
+    """Aggressors and decoder partners come from the same pair scope as in grading."""
+    rng = random.Random(scope)
+    test = resolve_test("March SS")
+    mem = make_memory(words=16, bits=4, mux=2)
+    kinds = [k for k in all_kinds() if k.arity == 2 and (k.family == "rules" or "sample" in scope)]
+    done = 0
+    for _ in range(60):
+        kind = rng.choice(kinds)
+        if kind.family == "af":
+            a, b = word_pairs(mem, parse_pairs(scope))
+        else:
+            a, b = cell_pairs(mem, parse_pairs(scope))
+        i = rng.randrange(a.size)
+        inst = Instance(kind, (int(a[i]), int(b[i])))
+        from marchkit.engine.core import n_init_cells
+
+        inits = tuple(rng.randrange(2) for _ in range(n_init_cells(kind)))
+        lines = generate_log(test, mem, inst, inits, rng)
+        if not lines:
+            continue
+        log = parse_fail_log(fail_log_csv(lines, mem), "x", mem.words, mem.bits, CompareTable(test, mem))
+        d = diagnose(test, mem, log, "all", scope, hint=False)
+        mine = [c for c in d.candidates if (kind.text, inst.sites) in _members(c)]
+        assert len(mine) == 1 and mine[0].rank == 1 and mine[0].mismatches == 0, inst.text(mem)
+        done += 1
+        if done == 12:
+            break
+    assert done == 12

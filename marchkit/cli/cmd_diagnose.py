@@ -114,7 +114,7 @@ def show(d, con, top=10, members=6) -> None:
         how = (("matches" if one else "match") + " the log exactly" if best == 0
                else ("is" if one else "are") + f" nearest ({best} mismatch{'es' if best != 1 else ''})")
         sizes = ", ".join(f"{c.size:,}" for c in cons[:12]) + (" …" if len(cons) > 12 else "")
-        con.print(f"resolution  {len(cons)} class{'es' if len(cons) != 1 else ''} {how}, of sizes {sizes}; "
+        con.print(f"resolution  {len(cons)} class{'es' if len(cons) != 1 else ''} {how}, of size{'' if one else 's'} {sizes}; "
                   f"{len(d.candidates):,} classes and {d.total_candidates:,} candidate faults considered")
         if best:
             c0 = d.candidates[0]

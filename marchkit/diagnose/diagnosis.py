@@ -198,9 +198,10 @@ def _aggressors(mem, scope, victim, sample_cache):
             a = w * mem.bits + np.arange(mem.bits, dtype=np.int64)
             parts.append(a[a != victim])
         else:
-            if p not in sample_cache:
-                sample_cache[p] = cell_pairs(mem, PairScope((p,), "sample"))
-            a, v = sample_cache[p]
+            key = ("cells",) + tuple(p)
+            if key not in sample_cache:
+                sample_cache[key] = cell_pairs(mem, PairScope((p,), "sample"))
+            a, v = sample_cache[key]
             parts.append(a[v == victim])
     return np.unique(np.concatenate(parts)) if parts else np.empty(0, np.int64)
 
@@ -222,9 +223,10 @@ def _partner_words(mem, scope, word, sample_cache):
             ws.discard(word)
             parts.append(np.array(sorted(ws), dtype=np.int64))
         elif p[0] == "sample":
-            if p not in sample_cache:
-                sample_cache[p] = word_pairs(mem, PairScope((p,), "sample"))
-            a, b = sample_cache[p]
+            key = ("words",) + tuple(p)
+            if key not in sample_cache:
+                sample_cache[key] = word_pairs(mem, PairScope((p,), "sample"))
+            a, b = sample_cache[key]
             parts.append(np.concatenate([b[a == word], a[b == word]]))
     return np.unique(np.concatenate(parts)) if parts else np.empty(0, np.int64)
 
