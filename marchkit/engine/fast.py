@@ -31,35 +31,24 @@ __all__ = ["Engine", "Prepared", "KindResult", "Detection"]
 
 
 class Prepared:
+    """One test on one memory: the memory's shared :class:`~marchkit.engine.setup.MemorySetup`
+    (``setup``; its arrays are also attributes here: ``order``/``rank`` (n,) int64, ``bg``
+    (R, n, B) uint8, ``key_bits`` (K, R) int8, ``cell_key`` (n·B,) small int) and the
+    test's schedule facts (``sched``, ``determined`` — the compared reads, ``any_elems``)."""
+
     def __init__(self, test, mem, sched=None):
-        from ..model import address_order, background_stack, ranks, schedule
+        from ..model import schedule
+        from .setup import memory_setup
 
         self.test = test
         self.mem = mem
         self.sched = sched or schedule(test, mem)
-        self.order = address_order(mem)
-        self.rank = ranks(self.order)
-        self.bg = background_stack(mem)          # (R, n, B) uint8
-        self.R = self.bg.shape[0]
-        self.n = mem.words
-        self.B = mem.bits
+        self.setup = ms = memory_setup(mem)
+        self.order, self.rank, self.bg = ms.order, ms.rank, ms.bg
+        self.R, self.n, self.B = ms.R, ms.n, ms.B
+        self.key_bits, self.cell_key, self.K = ms.key_bits, ms.cell_key, ms.K
         self.determined = determined_reads(self.sched)
         self.any_elems = [i for i, e in enumerate(test.elements) if e.order == "any"]
-        # key of each cell: its background bit in every run
-        w = np.arange(self.R, dtype=np.int64)
-        # key of each cell: the index of its background bits (one per run) among the distinct
-        # bit patterns present; key_bits[k] gives them back
-        bits = self.bg.reshape(self.R, -1).T                       # (n*B, R)
-        if self.R <= 62:
-            raw = (bits.astype(np.int64) << w[None, :]).sum(axis=1)
-            uniq, inv = np.unique(raw, return_inverse=True)
-            self.key_bits = ((uniq[:, None] >> w[None, :]) & 1).astype(np.int8)
-        else:
-            uniq_rows, inv = np.unique(bits, axis=0, return_inverse=True)
-            self.key_bits = uniq_rows.astype(np.int8)
-        self.cell_key = inv.ravel().astype(np.int64)               # (n*B,)
-        self.K = self.key_bits.shape[0]
-        self._word_key = None
 
     def seg_up(self, si, any_up=None) -> bool:
         """Whether segment ``si`` runs ⇑: ⇕ as ⇑ unless ``any_up`` (a flag per ⇕ element)."""
@@ -71,19 +60,12 @@ class Prepared:
         return True if any_up is None else any_up[self.any_elems.index(seg.element)]
 
     def word_keys(self):
-        """(key per word, representative word per key): words with the same data in every run."""
-        if self._word_key is None:
-            flat = np.ascontiguousarray(self.bg.transpose(1, 0, 2).reshape(self.n, -1))
-            _, first, inv = np.unique(flat, axis=0, return_index=True, return_inverse=True)
-            self._word_key = (inv.ravel().astype(np.int64), first.astype(np.int64))
-        return self._word_key
+        """(key (n,) int64 per word, representative word (U,) int64 per key)."""
+        return self.setup.word_keys()
 
     def word_key_hist(self):
         """(n, K) int64: how many cells of each word have each key."""
-        if getattr(self, "_wkh", None) is None:
-            w = np.repeat(np.arange(self.n, dtype=np.int64), self.B)
-            self._wkh = np.bincount(w * self.K + self.cell_key, minlength=self.n * self.K).reshape(self.n, self.K)
-        return self._wkh
+        return self.setup.word_key_hist()
 
     def cycle_of(self, si, k, word: np.ndarray) -> np.ndarray:
         seg = self.sched.segments[si]

@@ -12,7 +12,7 @@ from __future__ import annotations
 import numpy as np
 
 
-from ...faults import Instance, cell_pairs
+from ...faults import Instance
 from ..results import KindResult
 from .base import FastPath
 
@@ -216,34 +216,18 @@ def rules_batch(prep, structure, kind_idx, params, bga, bgv):
 
 
 def _pair_counts_all(prep):
-    """counts[structure, ka, kv] over all ordered pairs of distinct cells."""
-    n, B, K = prep.n, prep.B, prep.K
-    H = np.zeros((n, K), dtype=np.int64)
-    np.add.at(H, (np.repeat(np.arange(n), B), prep.cell_key), 1)
-    Hs = H[prep.order].astype(np.float64)
-    P = np.cumsum(Hs, axis=0) - Hs
-    out = np.zeros((4, K, K), dtype=np.int64)
-    out[AFIRST] = np.rint(P.T @ Hs).astype(np.int64)
-    out[VFIRST] = np.rint(Hs.T @ P).astype(np.int64)
-    Hf = H.astype(np.float64)
-    same = np.rint(Hf.T @ Hf).astype(np.int64) - np.diag(H.sum(axis=0))
-    out[SAME] = same
-    return out
+    """counts[structure, ka, kv] (4, K, K) int64 over all ordered pairs of distinct cells."""
+    return prep.setup._pair_counts_all()
 
 
 def _pair_structure(prep, a, v):
-    wa, wv = a // prep.B, v // prep.B
-    ra, rv = prep.rank[wa], prep.rank[wv]
-    return np.where(wa == wv, SAME, np.where(ra < rv, AFIRST, VFIRST))
+    """(m,) int64 structure of explicit cell pairs ``a``, ``v`` (m,) int64."""
+    return prep.setup.pair_structure(a, v)
 
 
 def _pair_counts_explicit(prep, a, v):
-    K = prep.K
-    s = _pair_structure(prep, a, v)
-    key = (s * K + prep.cell_key[a]) * K + prep.cell_key[v]
-    return np.bincount(key, minlength=4 * K * K).reshape(4, K, K)
-
-
+    """counts[structure, ka, kv] (4, K, K) int64 over explicit cell pairs."""
+    return prep.setup.pair_counts_explicit(a, v)
 
 
 class RulesFast(FastPath):
@@ -282,11 +266,9 @@ class RulesFast(FastPath):
     def grade(self, eng, kinds, scope, results):
         prep = eng.prep
         K = prep.K
-        single_counts = np.bincount(prep.cell_key, minlength=K)
-        pairs = None
+        single_counts = prep.setup.word_key_hist().sum(axis=0)
         if any(k.arity == 2 for k in kinds):
-            pairs = cell_pairs(prep.mem, scope)
-            pc = _pair_counts_all(prep) if pairs is None else _pair_counts_explicit(prep, *pairs)
+            pc = prep.setup.pair_counts(scope)
         else:
             pc = np.zeros((4, K, K), dtype=np.int64)
         eng.scratch["present"] = {SINGLE: np.zeros((K, K), dtype=bool)}
@@ -313,22 +295,26 @@ class RulesFast(FastPath):
                     if eng.examples:
                         for ka, kv in zip(*np.nonzero((counts > 0) & ~det[j])):
                             eng.take(res, [Instance(kind, c) for c in
-                                             self._cells_with_key(eng, s, int(ka), int(kv), pairs, eng.examples)])
+                                             self._cells_with_key(eng, s, int(ka), int(kv), scope, eng.examples)])
                 for e in np.unique(evt[j][(counts > 0) & det[j]]):
                     res.merge_element(prep.sched.segments[events[e][0]].element)
         return results
 
-    def _cells_with_key(self, eng, s, ka, kv, pairs, limit):
+    def _cells_with_key(self, eng, s, ka, kv, scope, limit):
         """Up to ``limit`` cell tuples whose key is (structure s, ka, kv)."""
         prep = eng.prep
         ck = prep.cell_key
         if s == SINGLE:
             return [(int(c),) for c in np.nonzero(ck == kv)[0][:limit]]
-        if pairs is not None:
-            a, v = pairs
-            m = (_pair_structure(prep, a, v) == s) & (ck[a] == ka) & (ck[v] == kv)
-            idx = np.nonzero(m)[0][:limit]
-            return [(int(a[i]), int(v[i])) for i in idx]
+        if not scope.is_all:
+            out: dict = {}
+            for a, v in prep.setup.cell_pair_chunks(scope):
+                m = (_pair_structure(prep, a, v) == s) & (ck[a] == ka) & (ck[v] == kv)
+                for i in np.nonzero(m)[0][:limit]:
+                    out.setdefault((int(a[i]), int(v[i])), None)
+                if len(out) >= limit:
+                    break
+            return list(out)[:limit]
         B = prep.B
         cells = np.arange(prep.n * B)
         crank = prep.rank[cells // B]
