@@ -17,8 +17,6 @@ and the parallel workers).
 
 from __future__ import annotations
 
-import itertools
-
 import numpy as np
 
 from ..faults import FAMILIES
@@ -33,52 +31,41 @@ __all__ = ["Engine", "Prepared", "KindResult", "Detection"]
 
 
 class Prepared:
+    """One test on one memory: the memory's shared :class:`~marchkit.engine.setup.MemorySetup`
+    (``setup``; its arrays are also attributes here: ``order``/``rank`` (n,) int64, ``bg``
+    (R, n, B) uint8, ``key_bits`` (K, R) int8, ``cell_key`` (n·B,) small int) and the
+    test's schedule facts (``sched``, ``determined`` — the compared reads, ``any_elems``)."""
+
     def __init__(self, test, mem, sched=None):
-        from ..model import address_order, background_stack, ranks, schedule
+        from ..model import schedule
+        from .setup import memory_setup
 
         self.test = test
         self.mem = mem
         self.sched = sched or schedule(test, mem)
-        self.order = address_order(mem)
-        self.rank = ranks(self.order)
-        self.bg = background_stack(mem)          # (R, n, B) uint8
-        self.R = self.bg.shape[0]
-        self.n = mem.words
-        self.B = mem.bits
+        self.setup = ms = memory_setup(mem)
+        self.order, self.rank, self.bg = ms.order, ms.rank, ms.bg
+        self.R, self.n, self.B = ms.R, ms.n, ms.B
+        self.key_bits, self.cell_key, self.K = ms.key_bits, ms.cell_key, ms.K
         self.determined = determined_reads(self.sched)
         self.any_elems = [i for i, e in enumerate(test.elements) if e.order == "any"]
-        self.scenarios = list(itertools.product((True, False), repeat=len(self.any_elems)))
-        # key of each cell: its background bit in every run
-        w = np.arange(self.R, dtype=np.int64)
-        # key of each cell: the index of its background bits (one per run) among the distinct
-        # bit patterns present; key_bits[k] gives them back
-        bits = self.bg.reshape(self.R, -1).T                       # (n*B, R)
-        if self.R <= 62:
-            raw = (bits.astype(np.int64) << w[None, :]).sum(axis=1)
-            uniq, inv = np.unique(raw, return_inverse=True)
-            self.key_bits = ((uniq[:, None] >> w[None, :]) & 1).astype(np.int8)
-        else:
-            uniq_rows, inv = np.unique(bits, axis=0, return_inverse=True)
-            self.key_bits = uniq_rows.astype(np.int8)
-        self.cell_key = inv.ravel().astype(np.int64)               # (n*B,)
-        self.K = self.key_bits.shape[0]
-        self._word_key = None
 
-    def seg_up(self, si, any_up) -> bool:
+    def seg_up(self, si, any_up=None) -> bool:
+        """Whether segment ``si`` runs ⇑: ⇕ as ⇑ unless ``any_up`` (a flag per ⇕ element)."""
         seg = self.sched.segments[si]
         if seg.order == "up":
             return True
         if seg.order == "down":
             return False
-        return any_up[self.any_elems.index(seg.element)]
+        return True if any_up is None else any_up[self.any_elems.index(seg.element)]
 
     def word_keys(self):
-        """(key per word, representative word per key): words with the same data in every run."""
-        if self._word_key is None:
-            flat = np.ascontiguousarray(self.bg.transpose(1, 0, 2).reshape(self.n, -1))
-            _, first, inv = np.unique(flat, axis=0, return_index=True, return_inverse=True)
-            self._word_key = (inv.ravel().astype(np.int64), first.astype(np.int64))
-        return self._word_key
+        """(key (n,) int64 per word, representative word (U,) int64 per key)."""
+        return self.setup.word_keys()
+
+    def word_key_hist(self):
+        """(n, K) int64: how many cells of each word have each key."""
+        return self.setup.word_key_hist()
 
     def cycle_of(self, si, k, word: np.ndarray) -> np.ndarray:
         seg = self.sched.segments[si]
@@ -86,6 +73,79 @@ class Prepared:
         pos = self.n - 1 - r if seg.order == "down" else r
         return seg.start + pos * seg.per_address + seg.op_offsets[k]
 
+
+
+# ---------------------------------------------------------------------------------------
+# ⇕ elements: carried state sets, shared by the fast paths
+
+MAX_CHOICE_SETS = 1 << 14
+
+
+def sweep_orders(prep, reach, transition):
+    """Whether some choice of ⇕ orders leaves each key undetected — without 2^k scenarios.
+
+    ``reach`` (M, NS) bool: the states (of NS per key) each of M keys may start in.
+    ``transition(si, up)`` → ``(end, det)``, both (M, NS): the state (intp) each start state
+    is in after element segment ``si`` run ⇑ (``up``) or ⇓, and whether a read detected on
+    the way (bool).  It is called at most twice per segment.  The set of reachable undetected
+    states is carried from segment to segment (see :mod:`marchkit.engine.core`); with several
+    background runs the order chosen for a ⇕ element is kept (as part of the state) until
+    its last run, so that it runs the same way in every run.  Returns (M,) bool.
+    """
+    from ..errors import EngineLimitError
+
+    segs = prep.sched.segments
+    last_run = segs[-1].run if segs else 0
+    M, NS = reach.shape
+    rows = np.broadcast_to(np.arange(M)[:, None], (M, NS))
+    alive = {(): reach}
+    cache = {}
+    for si, seg in enumerate(segs):
+        if seg.element is None:
+            continue
+        new: dict = {}
+        for vec, r in alive.items():
+            chosen = dict(vec)
+            if seg.order != "any":
+                orders = (seg.order == "up",)
+            elif seg.element in chosen:
+                orders = (chosen[seg.element],)
+            else:
+                orders = (True, False)
+            for up in orders:
+                if (si, up) not in cache:
+                    cache[(si, up)] = transition(si, up)
+                end, det = cache[(si, up)]
+                keep = r & ~det
+                if not keep.any():
+                    continue
+                nr = np.zeros((M, NS), dtype=bool)
+                nr[rows[keep], end[keep]] = True
+                if seg.order == "any":
+                    c = dict(chosen)
+                    if seg.run < last_run:
+                        c[seg.element] = up
+                    else:
+                        c.pop(seg.element, None)
+                    nvec = tuple(sorted(c.items()))
+                else:
+                    nvec = vec
+                if nvec in new:
+                    new[nvec] |= nr
+                else:
+                    new[nvec] = nr
+        if len(new) > MAX_CHOICE_SETS:
+            raise EngineLimitError(
+                f"the ⇕ elements of this test, repeated over {last_run + 1} background runs, leave more "
+                f"than {MAX_CHOICE_SETS} combinations of orders distinguishable; write some ⇕ as ⇑ or ⇓, "
+                "or grade one background at a time")
+        alive = new
+        if not alive:
+            break
+    out = np.zeros(M, dtype=bool)
+    for r in alive.values():
+        out |= r.any(axis=1)
+    return out
 
 
 # ---------------------------------------------------------------------------------------

@@ -25,7 +25,7 @@ from ..units import format_seconds  # noqa: F401  (re-exported)
 from .registry import FAMILIES, family_of
 
 DEFAULT_RETENTION = (Fraction(1, 1000),)
-MAX_EXPLICIT_PAIRS = 48_000_000     # directed pairs held as arrays (~3 GB at peak while grading)
+MAX_EXPLICIT_PAIRS = 48_000_000     # directed pairs listed as arrays (enumeration, mixed sampled scopes only)
 GROUP_WORDS = ("static", "classic", "retention", "dynamic", "all")
 
 
@@ -194,7 +194,8 @@ def _check_pair_budget(mem) -> None:
 
         raise EngineLimitError(
             f"{n:,} cells have about {n * mem.neighbours:,} neighbour pairs, more than marchkit "
-            f"lists at once ({MAX_EXPLICIT_PAIRS:,}); grade a sub-array, or use --pairs sample:K or all"
+            f"lists at once ({MAX_EXPLICIT_PAIRS:,}); grading counts them without a list, but "
+            "naming every instance (or mixing neighbours with sample:K) needs one"
         )
 
 
@@ -260,6 +261,36 @@ def word_pairs(mem, scope: PairScope) -> tuple[np.ndarray, np.ndarray] | None:
         key = np.unique(a * n + b)
         a, b = key // n, key % n
     return a, b
+
+
+def cell_pair_count(mem, scope: PairScope) -> int:
+    """Number of ordered cell pairs in ``scope``, in closed form for ``all``, ``neighbours``
+    and ``word`` (and their unions); sampled scopes are listed."""
+    from ..model.geometry import neighbour_pair_count, same_word_neighbour_pair_count
+
+    if scope.is_all:
+        return mem.cells * (mem.cells - 1)
+    kinds = {p[0] for p in scope.parts}
+    if kinds <= {"neighbours", "word"}:
+        nb = neighbour_pair_count(mem) if "neighbours" in kinds else 0
+        if "word" in kinds:
+            nb += mem.words * mem.bits * (mem.bits - 1)
+            if "neighbours" in kinds:
+                nb -= same_word_neighbour_pair_count(mem)
+        return nb
+    return int(cell_pairs(mem, scope)[0].size)
+
+
+def word_pair_count(mem, scope: PairScope) -> int:
+    """Number of ordered pairs of distinct words in ``scope`` (closed form but for samples)."""
+    from ..model.geometry import neighbour_word_pair_count
+
+    if scope.is_all:
+        return mem.words * (mem.words - 1)
+    kinds = {p[0] for p in scope.parts}
+    if kinds <= {"neighbours", "word"}:
+        return neighbour_word_pair_count(mem) if "neighbours" in kinds else 0
+    return int(word_pairs(mem, scope)[0].size)
 
 
 def instance_count(kind: FaultKind, mem, scope: PairScope) -> int:

@@ -12,7 +12,7 @@ from __future__ import annotations
 import numpy as np
 
 
-from ...faults import Instance, cell_pairs
+from ...faults import Instance
 from ..results import KindResult
 from .base import FastPath
 
@@ -56,60 +56,62 @@ def _rule_params(kinds):
     return P
 
 
-def _events(prep, structure, any_up):
-    """(segment, role, op) in time order; role 1 aggressor, 2 victim, 3 both."""
+def _seg_events(prep, si, structure, up):
+    """(segment, role, op) of segment ``si`` in time order, run ⇑ (``up``) or ⇓; role 1
+    aggressor, 2 victim, 3 both (same word)."""
+    seg = prep.sched.segments[si]
+    if structure == SINGLE:
+        roles = (2,)
+    elif structure == SAME:
+        roles = (3,)
+    else:
+        first_a = (structure == AFIRST) == up
+        roles = (1, 2) if first_a else (2, 1)
+    return [(si, role, k) for role in roles for k in range(len(seg.op_kinds))]
+
+
+def _events(prep, structure, any_up=None):
+    """Every (segment, role, op) of the test in time order, ⇕ run as ⇑ unless ``any_up``."""
     out = []
     for si, seg in enumerate(prep.sched.segments):
-        if seg.element is None:
-            continue
-        if structure == SINGLE:
-            roles = (2,)
-        elif structure == SAME:
-            roles = (3,)
-        else:
-            first_a = structure == AFIRST
-            if not prep.seg_up(si, any_up):
-                first_a = not first_a
-            roles = (1, 2) if first_a else (2, 1)
-        for role in roles:
-            for k in range(len(seg.op_kinds)):
-                out.append((si, role, k))
+        if seg.element is not None:
+            out += _seg_events(prep, si, structure, prep.seg_up(si, any_up))
     return out
 
 
-def rules_batch(prep, structure, kind_idx, params, bga, bgv):
-    """Simulate M keys at once.
+class _Batch:
+    """M keys of one structure: the kinds' rule parameters and the two cells' data.
 
-    ``kind_idx`` (M,) indexes the kinds in ``params``; ``bga``/``bgv`` (M, R) are the
-    background bits of aggressor and victim.  Returns (detected (M,), canonical first event
-    (M,) as an index into the canonical event list, that list).
+    ``p[name]`` (S, M, 1) int8 — rule slot × key; ``bga``/``bgv`` (M, R) int8 background bits
+    of aggressor and victim per run.  States are (M, I) int8 arrays ``va``/``vv``: the two
+    cells' values for I scenarios at once.
     """
-    M = kind_idx.size
-    two = structure != SINGLE
-    I = 4 if two else 2
-    init_a = np.array([0, 0, 1, 1] if two else [0, 0], dtype=np.int8)
-    init_v = np.array([0, 1, 0, 1] if two else [0, 1], dtype=np.int8)
-    S = params["rt"].shape[0]
-    p = {name: arr[:, kind_idx][:, :, None] for name, arr in params.items()}  # (S, M, 1)
-    dynamic = bool((p["rt"] == 6).any())
-    detected = np.ones(M, dtype=bool)
-    canon_first = np.full(M, -1, dtype=np.int64)
-    canon_events = None
 
-    def apply_states(va, vv):
-        for s in range(S):
+    def __init__(self, prep, structure, kind_idx, params, bga, bgv):
+        self.prep = prep
+        self.M = kind_idx.size
+        self.S = params["rt"].shape[0]
+        self.p = {name: arr[:, kind_idx][:, :, None] for name, arr in params.items()}
+        self.dynamic = bool((self.p["rt"] == 6).any())
+        self.bga, self.bgv = bga, bgv
+        self.two = structure != SINGLE
+
+    def apply_states(self, va, vv):
+        p = self.p
+        for s in range(self.S):
             rt = p["rt"][s]
             m1 = (rt == 1) & (vv == p["v_pre"][s])
             m5 = (rt == 5) & (va == p["a_pre"][s]) & (vv == p["v_pre"][s])
             vv = np.where(m1 | m5, p["f"][s], vv)
         return vv
 
-    for any_up in prep.scenarios:
-        events = _events(prep, structure, any_up)
-        va = np.broadcast_to(init_a, (M, I)).copy()
-        vv = np.broadcast_to(init_v, (M, I)).copy()
-        vv = apply_states(va, vv)
-        first = np.full((M, I), -1, dtype=np.int64)
+    def run(self, events, va, vv, first):
+        """Apply ``events`` to states (va, vv) (M, I) int8; ``first`` (M, I) int64 gets the
+        index in ``events`` of each scenario's first detection (where still -1).  Returns
+        the states after the events."""
+        prep, p, S = self.prep, self.p, self.S
+        bga, bgv = self.bga, self.bgv
+        shape = va.shape
         last_pre_v = vv    # the victim's value before its previous operation in this visit
         for ev, (si, role, k) in enumerate(events):
             seg = prep.sched.segments[si]
@@ -120,8 +122,8 @@ def rules_batch(prep, structure, kind_idx, params, bga, bgv):
             dv = (bgv[:, seg.run] ^ val)[:, None]
             ta, tv = bool(role & 1), bool(role & 2)
             pre_a, pre_v = va, vv
-            fired = np.zeros((M, I), dtype=bool)
-            fval = np.zeros((M, I), dtype=np.int8)
+            fired = np.zeros(shape, dtype=bool)
+            fval = np.zeros(shape, dtype=np.int8)
             outv = pre_v if (kind == "r" and tv) else None
             for s in range(S):
                 rt = p["rt"][s]
@@ -131,7 +133,7 @@ def rules_batch(prep, structure, kind_idx, params, bga, bgv):
                     if kind == "w":
                         opm = opm & (dv == p["v_val"][s])
                     mv = opm & ((rt == 2) | ((rt == 4) & (pre_a == p["a_pre"][s])))
-                    if dynamic and k > 0:
+                    if self.dynamic and k > 0:
                         # the previous operation of this visit (k-1) on the victim is the first
                         pk = seg.op_kinds[k - 1]
                         dprev = (bgv[:, seg.run] ^ seg.op_values[k - 1])[:, None]
@@ -155,54 +157,77 @@ def rules_batch(prep, structure, kind_idx, params, bga, bgv):
                     fval = np.where(fire, p["f"][s], fval)
             if kind == "w":
                 if ta:
-                    va = np.broadcast_to(da, (M, I)).astype(np.int8)
+                    va = np.broadcast_to(da, shape).astype(np.int8)
                 if tv:
-                    vv = np.broadcast_to(dv, (M, I)).astype(np.int8)
+                    vv = np.broadcast_to(dv, shape).astype(np.int8)
             if tv:
                 last_pre_v = pre_v
             vv = np.where(fired, fval, vv).astype(np.int8)
-            vv = apply_states(va, vv)
+            vv = self.apply_states(va, vv)
             if outv is not None and (si, k) in prep.determined:
                 det = (outv != dv) & (first < 0)
                 first[det] = ev
-        detected &= (first >= 0).all(axis=1)
-        if all(any_up):
-            canon_first = first.max(axis=1)
-            canon_events = events
-    canon_first[~detected] = -1
-    return detected, canon_first, canon_events
+        return va, vv
 
+
+def rules_batch(prep, structure, kind_idx, params, bga, bgv):
+    """Simulate M keys at once.
+
+    ``kind_idx`` (M,) int indexes the kinds in ``params``; ``bga``/``bgv`` (M, R) int8 are
+    the background bits of aggressor and victim.  Returns (detected (M,) bool, canonical
+    first event (M,) int64 as an index into the canonical event list or -1, that list).
+
+    The canonical scenario (⇕ run as ⇑) gives the first events; with ⇕ elements, detection
+    for every choice of orders comes from :func:`~marchkit.engine.fast.sweep_orders` over
+    the 2 or 4 states of the key's cells — linear in the number of elements.
+    """
+    b = _Batch(prep, structure, kind_idx, params, bga, bgv)
+    M = b.M
+    two = b.two
+    I = 4 if two else 2
+    init_a = np.array([0, 0, 1, 1] if two else [0, 0], dtype=np.int8)
+    init_v = np.array([0, 1, 0, 1] if two else [0, 1], dtype=np.int8)
+    va = np.broadcast_to(init_a, (M, I)).copy()
+    vv = b.apply_states(va, np.broadcast_to(init_v, (M, I)).copy())
+    start = (va.astype(np.intp) << 1 | vv) if two else vv.astype(np.intp)   # (M, I) state index
+    events = _events(prep, structure)
+    first = np.full((M, I), -1, dtype=np.int64)
+    b.run(events, va.copy(), vv.copy(), first)
+    detected = (first >= 0).all(axis=1)
+    if prep.any_elems:
+        from ..fast import sweep_orders
+
+        NS = I
+        sa = np.broadcast_to(init_a, (M, NS)).copy()    # state s: aggressor s >> 1, victim s & 1
+        sv = np.broadcast_to(init_v, (M, NS)).copy()
+
+        def transition(si, up):
+            f = np.full((M, NS), -1, dtype=np.int64)
+            ea, ev_ = b.run(_seg_events(prep, si, structure, up), sa.copy(), sv.copy(), f)
+            end = (ea.astype(np.intp) << 1 | ev_) if two else ev_.astype(np.intp)
+            return end, f >= 0
+
+        reach = np.zeros((M, NS), dtype=bool)
+        reach[np.arange(M)[:, None], start] = True
+        detected &= ~sweep_orders(prep, reach, transition)
+    canon_first = first.max(axis=1)
+    canon_first[~detected] = -1
+    return detected, canon_first, events
 
 
 def _pair_counts_all(prep):
-    """counts[structure, ka, kv] over all ordered pairs of distinct cells."""
-    n, B, K = prep.n, prep.B, prep.K
-    H = np.zeros((n, K), dtype=np.int64)
-    np.add.at(H, (np.repeat(np.arange(n), B), prep.cell_key), 1)
-    Hs = H[prep.order].astype(np.float64)
-    P = np.cumsum(Hs, axis=0) - Hs
-    out = np.zeros((4, K, K), dtype=np.int64)
-    out[AFIRST] = np.rint(P.T @ Hs).astype(np.int64)
-    out[VFIRST] = np.rint(Hs.T @ P).astype(np.int64)
-    Hf = H.astype(np.float64)
-    same = np.rint(Hf.T @ Hf).astype(np.int64) - np.diag(H.sum(axis=0))
-    out[SAME] = same
-    return out
+    """counts[structure, ka, kv] (4, K, K) int64 over all ordered pairs of distinct cells."""
+    return prep.setup._pair_counts_all()
 
 
 def _pair_structure(prep, a, v):
-    wa, wv = a // prep.B, v // prep.B
-    ra, rv = prep.rank[wa], prep.rank[wv]
-    return np.where(wa == wv, SAME, np.where(ra < rv, AFIRST, VFIRST))
+    """(m,) int64 structure of explicit cell pairs ``a``, ``v`` (m,) int64."""
+    return prep.setup.pair_structure(a, v)
 
 
 def _pair_counts_explicit(prep, a, v):
-    K = prep.K
-    s = _pair_structure(prep, a, v)
-    key = (s * K + prep.cell_key[a]) * K + prep.cell_key[v]
-    return np.bincount(key, minlength=4 * K * K).reshape(4, K, K)
-
-
+    """counts[structure, ka, kv] (4, K, K) int64 over explicit cell pairs."""
+    return prep.setup.pair_counts_explicit(a, v)
 
 
 class RulesFast(FastPath):
@@ -241,11 +266,9 @@ class RulesFast(FastPath):
     def grade(self, eng, kinds, scope, results):
         prep = eng.prep
         K = prep.K
-        single_counts = np.bincount(prep.cell_key, minlength=K)
-        pairs = None
+        single_counts = prep.setup.word_key_hist().sum(axis=0)
         if any(k.arity == 2 for k in kinds):
-            pairs = cell_pairs(prep.mem, scope)
-            pc = _pair_counts_all(prep) if pairs is None else _pair_counts_explicit(prep, *pairs)
+            pc = prep.setup.pair_counts(scope)
         else:
             pc = np.zeros((4, K, K), dtype=np.int64)
         eng.scratch["present"] = {SINGLE: np.zeros((K, K), dtype=bool)}
@@ -272,22 +295,26 @@ class RulesFast(FastPath):
                     if eng.examples:
                         for ka, kv in zip(*np.nonzero((counts > 0) & ~det[j])):
                             eng.take(res, [Instance(kind, c) for c in
-                                             self._cells_with_key(eng, s, int(ka), int(kv), pairs, eng.examples)])
+                                             self._cells_with_key(eng, s, int(ka), int(kv), scope, eng.examples)])
                 for e in np.unique(evt[j][(counts > 0) & det[j]]):
                     res.merge_element(prep.sched.segments[events[e][0]].element)
         return results
 
-    def _cells_with_key(self, eng, s, ka, kv, pairs, limit):
+    def _cells_with_key(self, eng, s, ka, kv, scope, limit):
         """Up to ``limit`` cell tuples whose key is (structure s, ka, kv)."""
         prep = eng.prep
         ck = prep.cell_key
         if s == SINGLE:
             return [(int(c),) for c in np.nonzero(ck == kv)[0][:limit]]
-        if pairs is not None:
-            a, v = pairs
-            m = (_pair_structure(prep, a, v) == s) & (ck[a] == ka) & (ck[v] == kv)
-            idx = np.nonzero(m)[0][:limit]
-            return [(int(a[i]), int(v[i])) for i in idx]
+        if not scope.is_all:
+            out: dict = {}
+            for a, v in prep.setup.cell_pair_chunks(scope):
+                m = (_pair_structure(prep, a, v) == s) & (ck[a] == ka) & (ck[v] == kv)
+                for i in np.nonzero(m)[0][:limit]:
+                    out.setdefault((int(a[i]), int(v[i])), None)
+                if len(out) >= limit:
+                    break
+            return list(out)[:limit]
         B = prep.B
         cells = np.arange(prep.n * B)
         crank = prep.rank[cells // B]
