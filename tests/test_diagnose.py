@@ -622,3 +622,27 @@ def test_other_pair_scopes_find_the_injected_pair(scope):
         if done == 12:
             break
     assert done == 12
+
+
+def test_icarus_log_from_the_exported_stuck_at_testbench(tmp_path, cli, monkeypatch):
+    """`marchkit export --format hex --stuck-at W:B:V` writes a testbench whose SRAM model has
+    that cell stuck by default; its +all_failures report, turned into a fail log, diagnoses
+    as that stuck-at cell (exact match, rank 1)."""
+    monkeypatch.chdir(tmp_path)
+    code, out, err = cli("export", "March C-", "--words", "32", "--bits", "4", "--mux", "2", "--format", "hex",
+                         "-o", "pattern.hex", "--stuck-at", "19:2:1")
+    assert code == 0, err
+    vvp = compile_tb(tmp_path)
+    code, out = run_vvp(vvp, tmp_path, "+all_failures")
+    assert code != 0 and "stuck-at-1 cell: address 19 bit 2" in out, out
+    m = make_memory(words=32, bits=4, mux=2)
+    lines = _icarus_log(out, m.bits)
+    (tmp_path / "fails.csv").write_text(fail_log_csv(lines, m))
+    code, text, err = cli("diagnose", "March C-", "--words", "32", "--bits", "4", "--mux", "2",
+                          "--fails", "fails.csv", "--json", "--no-hint")
+    assert code == 0, err
+    res = json.loads(text)
+    first = [c for c in res["candidates"] if c["rank"] == 1]
+    assert all(c["mismatches"] == 0 for c in first)
+    assert any({"kind": "SA1", "cells": [[19, 2]]} in c["members"] for c in first)
+    assert res["bitmap"]["class"] == "single cell"
