@@ -219,8 +219,7 @@ class CompareTable:
     """Which address each compare cycle of ``test`` on ``mem`` reads and what it expects."""
 
     def __init__(self, test, mem, sched=None):
-        from ..engine.core import determined_reads
-        from ..model import address_order, background_stack, schedule
+        from ..model import address_order, background_stack, compared_reads, schedule
 
         self.test = test
         self.mem = mem
@@ -236,7 +235,7 @@ class CompareTable:
             self._bg = bg
         self.ones = (1 << mem.bits) - 1
         self.starts = [s.start for s in self.sched.segments]
-        self.determined = determined_reads(self.sched)
+        self.determined = compared_reads(self.sched)
 
     def background_word(self, run: int, address: int) -> int:
         if self.bgword is not None:
