@@ -180,6 +180,10 @@ def classify(bm: Bitmap) -> Bitmap:
         for p in bm.parts:
             counts[p.kind] = counts.get(p.kind, 0) + 1
         bm.detail = ", ".join(f"{v} {k}{'s' if v > 1 else ''}" for k, v in counts.items())
+    if bm.words is not None and bm.kind not in ("single cell", "word"):
+        uw = np.unique(bm.words)
+        if 1 < uw.size <= 4:
+            bm.detail += f" (in words {', '.join(str(int(w)) for w in uw)})"
     return bm
 
 
