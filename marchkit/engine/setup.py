@@ -88,7 +88,13 @@ class MemorySetup:
                 raw = np.zeros(bits.shape[1], dtype=np.uint8 if self.R <= 8 else np.int32)
                 for r in range(self.R):
                     raw |= bits[r].astype(raw.dtype) << raw.dtype.type(r)
-            present = np.bincount(raw, minlength=1 << self.R) > 0
+            if self.R == 1:
+                ones = int(np.count_nonzero(raw))
+                present = np.array([ones < raw.size, ones > 0])
+            else:
+                present = np.zeros(1 << self.R, dtype=bool)
+                for i in range(0, raw.size, CHUNK_CELLS * 4):      # bincount casts to intp: chunk it
+                    present |= np.bincount(raw[i:i + CHUNK_CELLS * 4], minlength=1 << self.R) > 0
             code = (np.cumsum(present) - 1)
             vals = np.nonzero(present)[0]
             self.key_bits = ((vals[:, None] >> np.arange(self.R)[None, :]) & 1).astype(np.int8)
@@ -159,8 +165,13 @@ class MemorySetup:
                         for run in range(R):
                             key = key << 1 | self.bg[run, cw[sl]].astype(np.int32)
                     key = key.ravel()
-                    counts += np.bincount(key, minlength=space)
-                    np.minimum.at(first, key, np.arange(w0 * B, sl.stop * B, dtype=np.int64))
+                    c = np.bincount(key, minlength=space)
+                    new = np.nonzero((c > 0) & (counts == 0))[0]
+                    if new.size:        # first cell of each key seen for the first time
+                        order = np.argsort(key, kind="stable")
+                        pos = np.searchsorted(key[order], new)
+                        first[new] = w0 * B + order[pos]
+                    counts += c
                 present = counts > 0
                 self._cache["sof"] = (counts[present], first[present])
             else:   # very many background runs: number the distinct rows of bits
@@ -244,6 +255,26 @@ class MemorySetup:
         only spread over the columns (bits) when the cell keys vary (K > 1)."""
         from ..model.geometry import neighbour_directions
 
+        from .workers import can_fork, map_forked
+
+        mem = self.mem
+        rows = mem.rows
+        workers = can_fork(mem.cells, 1 << 22)
+        bounds = [(0, rows)] if workers < 2 else [(0, rows // 2), (rows // 2, rows)]
+        total = sum(map_forked(lambda b: self._count_rows(*b), bounds, workers))
+        K = self.K
+        c = total.reshape(4, K, K)
+        out = c.copy()
+        out[AFIRST] += c[VFIRST].T
+        out[VFIRST] += c[AFIRST].T
+        out[SAME] += c[SAME].T
+        return out
+
+    def _count_rows(self, row0, row1):
+        """(4·K·K,) int64 counts of the half-direction neighbour pairs whose first cell is in
+        grid rows [row0, row1) (see :meth:`_neighbour_counts`)."""
+        from ..model.geometry import neighbour_directions
+
         mem, K = self.mem, self.K
         rows, cols, mux = mem.rows, mem.columns, mem.mux
         half = [(dr, dc) for dr, dc in neighbour_directions(mem) if dr > 0 or (dr == 0 and dc > 0)]
@@ -251,8 +282,8 @@ class MemorySetup:
         chunk = max(1, CHUNK_CELLS // cols)
         code_t = np.uint8 if 4 * K * K <= 256 else np.int32
         slots = np.arange(mux)
-        for r0 in range(0, rows, chunk):
-            r1 = min(rows, r0 + chunk)
+        for r0 in range(row0, row1, chunk):
+            r1 = min(row1, r0 + chunk)
             hi = min(rows, r1 + 1)                                  # one halo row below
             rr = np.arange(r0, hi, dtype=np.int64)
             lw = mem.logical_word(rr[:, None] * mux + slots[None, :])   # (h, mux) int64
@@ -281,12 +312,7 @@ class MemorySetup:
                 # python-int scalars: a numpy scalar makes strided uint8 arithmetic ~10× slower
                 code = (Sc * K + CK[:a1, c0:c1]) * K + CK[dr:dr + a1, c0 + dc:c1 + dc]
                 total += np.bincount(code.ravel().astype(np.intp), minlength=4 * K * K)
-        c = total.reshape(4, K, K)
-        out = c.copy()
-        out[AFIRST] += c[VFIRST].T
-        out[VFIRST] += c[AFIRST].T
-        out[SAME] += c[SAME].T
-        return out
+        return total
 
     # ---- word pairs (address-decoder faults) ---------------------------------------
     def word_pair_counts(self, scope):
