@@ -153,6 +153,9 @@ class Engine:
     the fast paths of :mod:`marchkit.engine.fastpaths`."""
 
     def __init__(self, test, mem, sched=None, examples: int = 0):
+        from .setup import check_limits
+
+        check_limits(mem)             # before any work
         self.prep = Prepared(test, mem, sched)
         self.examples = examples      # how many undetected instances to name per kind
         self.scratch: dict = {}       # per-call state of a fast path (not shared across calls)

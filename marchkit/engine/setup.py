@@ -17,6 +17,28 @@ from functools import lru_cache
 import numpy as np
 
 SINGLE, AFIRST, VFIRST, SAME = 0, 1, 2, 3
+MAX_SETUP_BYTES = 3 << 29      # what the fast engine's per-cell and per-word arrays may take (1.5 GiB)
+
+
+def setup_bytes(mem) -> int:
+    """Estimated bytes of the fast engine's arrays for ``mem``: per cell the background of
+    every run and the cell key (uint8 each) plus room for one more; per word the order, the
+    ranks, the word keys and the retention state (64 bytes)."""
+    from ..model import background_names
+
+    return mem.cells * (len(background_names(mem)) + 2) + mem.words * 64
+
+
+def check_limits(mem) -> None:
+    """Refuse, before any work, a memory whose arrays the fast engine cannot hold."""
+    need = setup_bytes(mem)
+    if need > MAX_SETUP_BYTES:
+        from ..errors import EngineLimitError
+
+        raise EngineLimitError(
+            f"{mem.words:,} words × {mem.bits} bits would need about {need / 2**30:.1f} GiB of arrays "
+            f"in the fast engine (at most {MAX_SETUP_BYTES / 2**30:.1f} GiB: about 2^28 cells with one "
+            "background run, or 2^24 words); grade a smaller array, fewer background runs, or a sub-array")
 CHUNK_CELLS = 1 << 20          # grid cells per chunk of the neighbour counting
 
 
