@@ -14,6 +14,7 @@ from fractions import Fraction
 
 from .errors import ModelError
 
+SECONDS_PER_UNIT = {"ns": Fraction(1, 10**9), "us": Fraction(1, 10**6), "ms": Fraction(1, 1000), "s": Fraction(1)}
 _FREQ_UNITS = {"hz": 1, "khz": 10**3, "mhz": 10**6, "ghz": 10**9}
 
 
@@ -36,8 +37,7 @@ def parse_duration(text: str) -> Fraction:
     m = re.fullmatch(r"\s*([0-9]+(?:\.[0-9]*)?(?:[eE][+-]?[0-9]+)?)\s*(ns|us|µs|ms|s)\s*", str(text))
     if not m:
         raise ModelError(f"{text!r} is not a duration such as 10ms")
-    unit = {"ns": Fraction(1, 10**9), "us": Fraction(1, 10**6), "µs": Fraction(1, 10**6),
-            "ms": Fraction(1, 1000), "s": Fraction(1)}[m.group(2)]
+    unit = SECONDS_PER_UNIT[m.group(2).replace("µs", "us")]
     return Fraction(m.group(1)) * unit
 
 
