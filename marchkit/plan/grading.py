@@ -113,12 +113,25 @@ class Cache:
             return None
         return data
 
+    def get_raw(self, key: str) -> dict | None:
+        """Any cached record by key (None when missing or unreadable)."""
+        if self.dir is None:
+            return None
+        try:
+            data = json.loads(self._path(key).read_text(encoding="utf-8"))
+        except (OSError, ValueError, UnicodeDecodeError):
+            return None
+        return data if isinstance(data, dict) and data.get("key") == key else None
+
     def put(self, job: Job, result: dict) -> None:
+        self.put_raw(job.key, result)
+
+    def put_raw(self, key: str, result: dict) -> None:
         if self.dir is None:
             return
         from ..files import write_file
 
-        p = self._path(job.key)
+        p = self._path(key)
         try:
             p.parent.mkdir(parents=True, exist_ok=True)
             write_file(p, json.dumps(result, sort_keys=True), force=True)
@@ -142,12 +155,16 @@ class GradeRun:
     results: dict          # job key -> result dict
     computed: int          # jobs graded in this run
     cached: int            # jobs answered by the cache
+    where: str = "serial"  # "serial", "cache", or "N Dask workers"
 
 
-def grade_jobs(jobs, client=None, cache: Cache | None = None, progress=None) -> GradeRun:
+def grade_jobs(jobs, client=None, cache: Cache | None = None, progress=None, connect=None) -> GradeRun:
     """Grade every distinct job once: from the cache, else on ``client`` (a Dask client:
     ``submit`` + ``gather``) or, without one, here, one after the other.
 
+    ``connect``: a callable returning a context manager that yields a client, used (only
+    when something is left to grade after the cache) if ``client`` is None — so a run the
+    cache answers completely starts no cluster.
     ``progress(done, total)`` is called as results arrive.
     """
     cache = cache or Cache(None)
@@ -168,6 +185,13 @@ def grade_jobs(jobs, client=None, cache: Cache | None = None, progress=None) -> 
         progress(cached, total)
     # biggest first, so the long tasks do not end up last on one worker
     order = sorted(todo.values(), key=lambda j: -_size(j))
+    if order and client is None and connect is not None:
+        with connect() as c:
+            return _compute(order, c, cache, results, cached, total, progress)
+    return _compute(order, client, cache, results, cached, total, progress)
+
+
+def _compute(order, client, cache, results, cached, total, progress) -> GradeRun:
     if client is None:
         for n, j in enumerate(order, 1):
             res = run_job(j)
@@ -189,7 +213,17 @@ def grade_jobs(jobs, client=None, cache: Cache | None = None, progress=None) -> 
             done += 1
             if progress:
                 progress(cached + done, total)
-    return GradeRun(results, len(todo), cached)
+    return GradeRun(results, len(order), cached, _where(client) if order else "cache")
+
+
+def _where(client) -> str:
+    if client is None:
+        return "serial"
+    try:
+        n = len(client.scheduler_info().get("workers", {}))
+    except Exception:    # pragma: no cover
+        return "Dask"
+    return f"{n} Dask worker{'s' if n != 1 else ''}"
 
 
 def _size(job: Job) -> int:

@@ -215,20 +215,30 @@ def choose(variant: Variant) -> None:
             variant.unmet.append((cls, p, (d / n) if n else 1.0, best.test.name or best.spec))
 
 
-def make_plan(soc: Soc | str, client=None, cache_dir="default", progress=None, generator=None) -> Plan:
+def make_plan(soc: Soc | str, client=None, cache_dir="default", progress=None, generator=None,
+              connect=None) -> Plan:
     """Grade (on ``client`` if given, else here), choose and schedule.
 
     ``cache_dir``: ``"default"`` (``$MARCHKIT_CACHE`` or the user's cache directory), a
     directory, or None (no cache).  ``generator(soc, variants, client)`` → {type name: tests}
     answers the "generate" candidates; without it they are refused.
+    ``connect()``: a context manager yielding a client, opened only when the cache leaves
+    something to grade (the command line passes :func:`marchkit.plan.cluster.open_client`).
     ``progress(done, total)`` follows the grading.
     """
     if not isinstance(soc, Soc):
         soc = read_soc(soc)
     check_generate(soc, generator)
     variants = variants_of(soc)
-    generated = generator(soc, variants, client) if generator is not None and any(
-        c.is_generate for c in soc.candidates.values()) else None
+    if generator is not None and any(c.is_generate for c in soc.candidates.values()):
+        if client is None and connect is not None:
+            with connect() as c:
+                return _plan(soc, variants, generator(soc, variants, c), c, cache_dir, progress, None)
+        return _plan(soc, variants, generator(soc, variants, client), client, cache_dir, progress, connect)
+    return _plan(soc, variants, None, client, cache_dir, progress, connect)
+
+
+def _plan(soc, variants, generated, client, cache_dir, progress, connect) -> Plan:
     cache = Cache(default_cache_dir() if cache_dir == "default" else cache_dir)
     jobs = {}
     per_variant = {}
@@ -240,7 +250,7 @@ def make_plan(soc: Soc | str, client=None, cache_dir="default", progress=None, g
             pairs.append((spec, test, job.key))
         per_variant[key] = pairs
     t0 = time.perf_counter()
-    run = grade_jobs(list(jobs.values()), client=client, cache=cache, progress=progress)
+    run = grade_jobs(list(jobs.values()), client=client, cache=cache, progress=progress, connect=connect)
     grade_s = time.perf_counter() - t0
     classes: dict = {}
     for key, v in variants.items():
@@ -259,7 +269,7 @@ def make_plan(soc: Soc | str, client=None, cache_dir="default", progress=None, g
     for inst in soc.instances:
         v = variants[(inst.type, soc.domains[inst.domain])]
         tasks.append(Task(inst.name, inst.group, v.chosen.seconds, v.watts))
-    sched = solve(tasks, soc.budget_w, float(soc.time_limit), soc.solver_threads)
+    sched = _solve_cached(tasks, soc, cache)
     rows = []
     for inst, task in zip(soc.instances, tasks):
         key = (inst.type, soc.domains[inst.domain])
@@ -271,14 +281,19 @@ def make_plan(soc: Soc | str, client=None, cache_dir="default", progress=None, g
                      "seconds": float(v.chosen.seconds), "watts": v.watts, "power_w": float(v.watts),
                      "meets": v.chosen.meets})
     return Plan(soc, variants, rows, sched, run.computed, run.cached, grade_s, tuple(classes),
-                workers=_workers_text(client))
+                workers=run.where)
 
 
-def _workers_text(client) -> str:
-    if client is None:
-        return "serial"
-    try:
-        n = len(client.scheduler_info().get("workers", {}))
-        return f"{n} Dask worker{'s' if n != 1 else ''}"
-    except Exception:    # pragma: no cover
-        return "Dask"
+def _solve_cached(tasks, soc, cache):
+    """Solve, or take the stored answer to the very same problem (re-checked on loading)."""
+    from .schedule import from_record, problem_key, to_record
+
+    key = problem_key(tasks, soc.budget_w, float(soc.time_limit), soc.solver_threads)
+    rec = cache.get_raw(key)
+    if rec is not None:
+        got = from_record(rec, tasks, soc.budget_w)
+        if got is not None:
+            return got
+    sched = solve(tasks, soc.budget_w, float(soc.time_limit), soc.solver_threads)
+    cache.put_raw(key, to_record(key, sched))
+    return sched

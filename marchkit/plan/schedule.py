@@ -190,12 +190,51 @@ def solve(tasks: list[Task], budget_w: Fraction, time_limit_s: float = 10.0, thr
         bound = max(lb, int(math.ceil(solver.BestObjectiveBound())))
         if st == cp_model.OPTIMAL:
             bound = make
+        # left-justify: the serial scheme in order of the solver's start times moves every
+        # task as early as the tasks before it allow, never later (Kolisch 1996)
+        shifted = list_schedule(dur, pw, grp, budget, order=sorted(range(len(dur)), key=lambda i: (got[i], i)))
+        if max(a + d for a, d in zip(shifted, dur)) <= make:
+            got = shifted
+            make = max(a + d for a, d in zip(got, dur))
         if make > g_make:     # pragma: no cover - the hint is feasible, CP-SAT never does worse
             got, make = greedy, g_make
         return _result(tasks, got, dur, make, min(bound, make), "optimal" if bound >= make else "feasible",
                        elapsed, "CP-SAT")
     return _result(tasks, greedy, dur, g_make, lb, "optimal" if lb >= g_make else "feasible", elapsed,
                    "list schedule (CP-SAT found nothing better in the time limit)")
+
+
+def problem_key(tasks: list[Task], budget_w: Fraction, time_limit_s: float, threads: int) -> str:
+    """Content hash of a scheduling problem (with the marchkit version and solver settings)."""
+    import hashlib
+    import json
+
+    from .. import __version__
+
+    blob = json.dumps({"marchkit": __version__, "what": "schedule", "budget": power_units(budget_w, up=False),
+                       "limit": float(time_limit_s), "threads": int(threads),
+                       "tasks": [[t.name, t.group, max(1, ticks(t.seconds)), power_units(t.watts)] for t in tasks]},
+                      sort_keys=True)
+    return hashlib.sha256(blob.encode()).hexdigest()
+
+
+def to_record(key: str, s: Schedule) -> dict:
+    return {"key": key, "starts": s.starts, "makespan": s.makespan, "bound": s.bound, "status": s.status,
+            "solve_seconds": s.solve_seconds, "solver": s.solver}
+
+
+def from_record(rec: dict, tasks: list[Task], budget_w: Fraction) -> Schedule | None:
+    """A cached schedule, if it is complete and valid for ``tasks`` (checked again)."""
+    try:
+        starts = {t.name: int(rec["starts"][t.name]) for t in tasks}
+        dur = {t.name: max(1, ticks(t.seconds)) for t in tasks}
+        s = Schedule(starts, {n: starts[n] + dur[n] for n in starts}, int(rec["makespan"]), int(rec["bound"]),
+                     str(rec["status"]), float(rec["solve_seconds"]), str(rec["solver"]) + ", from the cache")
+    except (KeyError, TypeError, ValueError):
+        return None
+    if s.makespan != max(s.ends.values(), default=0) or check_schedule(tasks, s, budget_w):
+        return None
+    return s
 
 
 def _result(tasks, starts, dur, make, bound, status, elapsed, solver) -> Schedule:

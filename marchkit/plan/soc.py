@@ -584,9 +584,17 @@ def parse_soc(text: str, filename: str = "<soc>", base: Path | None = None) -> S
         if len(instances) > MAX_INSTANCES:
             raise r.fail(f"more than {MAX_INSTANCES} instances", r.pos.table(path))
 
-    used = {i.type for i in instances}
-    unused = [t for t in types if t not in used]
-    del unused  # an unused type is allowed (a library of types); it is not graded
+    # a memory that alone draws more than the budget can never be tested within it
+    for tname, dname in dict.fromkeys((i.type, i.domain) for i in instances):
+        t = types[tname]
+        watts = t.power(t.memory(domains[dname]))
+        if watts > budget:
+            users = [i.name for i in instances if i.type == tname and i.domain == dname]
+            key = "power" if t.power_w is not None else "access_energy"
+            raise r.fail(f"memory type {tname!r} draws {float(watts) * 1e3:.4g} mW under test in domain "
+                         f"{dname!r}, more than the whole power budget ({float(budget) * 1e3:.4g} mW): "
+                         f"{', '.join(users[:4])}{' …' if len(users) > 4 else ''}",
+                         r.pos.value(("types", tname, key)))
     soc = Soc(name=soc_name, path=filename, text=text, faults=faults, pairs=pairs, retention=tuple(retention),
               budget_w=budget, time_limit=time_limit, solver_threads=threads, domains=domains, types=types,
               instances=instances, candidates=candidates, default_tests=default_tests or (),
