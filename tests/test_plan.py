@@ -349,7 +349,7 @@ def dask_pair(tmp_path):
         assert address.startswith("tcp://127.0.0.1:")
         procs.append(subprocess.Popen(
             [sys.executable, "-m", "distributed.cli.dask_worker", address, "--nthreads", "1", "--nworkers", "1",
-             "--host", "127.0.0.1", "--no-dashboard"],
+             "--host", "127.0.0.1", "--no-dashboard", "--no-nanny"],
             env=env, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL))
         yield address
     finally:

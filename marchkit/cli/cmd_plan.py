@@ -145,8 +145,8 @@ def show_plan(data: dict, con) -> None:
     con.print(t)
     short = [ty for ty in types if not ty["meets"]]
     if short:
-        con.print("[bold red]requirements no candidate meets[/bold red] (these memories would ship "
-                  "less tested than required):")
+        con.print("[bold red]requirements no candidate meets[/bold red]")
+        con.print("(these memories would ship less tested than required)")
         for ty in short:
             for u in ty["unmet"]:
                 con.print(f"  {ty['type']} at {format_frequency(ty['clock_hz'])}: {u['class']} ≥ "

@@ -150,16 +150,28 @@ def solve(tasks: list[Task], budget_w: Fraction, time_limit_s: float = 10.0, thr
     if g_make == lb:          # the list schedule meets a lower bound: optimal already
         return _result(tasks, greedy, dur, g_make, lb, "optimal", time.perf_counter() - t0, "list schedule")
 
+    # work in units of the greatest common divisor of the lengths: the same problem (an
+    # optimal schedule can be left-justified, so its start times are sums of lengths), with
+    # domains small enough for the solver to prove bounds quickly
+    unit = 0
+    for d in dur:
+        unit = math.gcd(unit, d)
+    dur_t, greedy_t, lb_t = dur, greedy, lb
+    dur = [d // unit for d in dur_t]
+    greedy = [s // unit if s % unit == 0 else None for s in greedy_t]
+    lb = -(-lb_t // unit)
+
     from ortools.sat.python import cp_model
 
     m = cp_model.CpModel()
-    horizon = g_make
+    horizon = -(-g_make // unit)
     starts, ivs = [], []
     for i, d in enumerate(dur):
         s = m.NewIntVar(0, horizon - d, f"s{i}")
         starts.append(s)
         ivs.append(m.NewIntervalVar(s, d, s + d, f"i{i}"))
-        m.AddHint(s, greedy[i])
+        if greedy[i] is not None:
+            m.AddHint(s, greedy[i])
     by_group: dict = {}
     for i, g in enumerate(grp):
         by_group.setdefault(g, []).append(i)
@@ -185,9 +197,10 @@ def solve(tasks: list[Task], budget_w: Fraction, time_limit_s: float = 10.0, thr
     st = solver.Solve(m)
     elapsed = time.perf_counter() - t0
     if st in (cp_model.OPTIMAL, cp_model.FEASIBLE):
-        got = [solver.Value(s) for s in starts]
+        got = [solver.Value(s) * unit for s in starts]
+        dur = dur_t
         make = max(g + d for g, d in zip(got, dur))
-        bound = max(lb, int(math.ceil(solver.BestObjectiveBound())))
+        bound = max(lb_t, int(math.ceil(solver.BestObjectiveBound())) * unit)
         if st == cp_model.OPTIMAL:
             bound = make
         # left-justify: the serial scheme in order of the solver's start times moves every
@@ -197,10 +210,10 @@ def solve(tasks: list[Task], budget_w: Fraction, time_limit_s: float = 10.0, thr
             got = shifted
             make = max(a + d for a, d in zip(got, dur))
         if make > g_make:     # pragma: no cover - the hint is feasible, CP-SAT never does worse
-            got, make = greedy, g_make
+            got, make = greedy_t, g_make
         return _result(tasks, got, dur, make, min(bound, make), "optimal" if bound >= make else "feasible",
                        elapsed, "CP-SAT")
-    return _result(tasks, greedy, dur, g_make, lb, "optimal" if lb >= g_make else "feasible", elapsed,
+    return _result(tasks, greedy_t, dur_t, g_make, lb_t, "optimal" if lb_t >= g_make else "feasible", elapsed,
                    "list schedule (CP-SAT found nothing better in the time limit)")
 
 
