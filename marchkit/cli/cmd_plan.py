@@ -169,18 +169,34 @@ def show_plan(data: dict, con) -> None:
         gt.add_row(grp["group"], grp["domain"], str(grp["instances"]), fmt_s(grp["busy_s"]),
                    fmt_s(grp["start_s"]), fmt_s(grp["end_s"]))
     con.print(gt)
-    for grp in sorted(groups, key=lambda x: (-x["end_s"], x["group"])):
+    order = sorted(groups, key=lambda x: (-x["end_s"], x["group"]))
+    for grp in order:
+        if grp["instances"] < 2:
+            continue
         rows = sorted(by_group[grp["group"]], key=lambda r: (r["start_s"], r["name"]))
         tt = Table(show_edge=False, pad_edge=False, title=f"group {grp['group']} ({grp['domain']})",
                    title_justify="left", title_style="bold")
         for col, just in (("memory", "left"), ("type", "left"), ("test", "left"), ("start", "right"),
                           ("end", "right"), ("power", "right")):
-            tt.add_column(col, justify=just, no_wrap=True, overflow="ellipsis",
-                          max_width=24 if col == "memory" else (16 if col in ("type", "test") else None))
+            tt.add_column(col, justify=just, no_wrap=True, overflow="ellipsis")
         for r in rows:
             tt.add_row(r["name"], r["type"], r["test"] + ("" if r["meets"] else " [red]![/red]"),
                        fmt_s(r["start_s"]), fmt_s(r["end_s"]), fmt_w(r["power_w"]))
         con.print(tt)
+    singles = [by_group[g["group"]][0] for g in order if g["instances"] == 1]
+    if singles:
+        tt = Table(show_edge=False, pad_edge=False, title="memories on a controller of their own",
+                   title_justify="left", title_style="bold")
+        for col, just in (("memory", "left"), ("group", "left"), ("test", "left"), ("start", "right"),
+                          ("end", "right"), ("power", "right")):
+            tt.add_column(col, justify=just, no_wrap=True, overflow="ellipsis")
+        for r in singles:
+            tt.add_row(r["name"], "" if r["group"] == r["name"] else r["group"],
+                       r["test"] + ("" if r["meets"] else " [red]![/red]"),
+                       fmt_s(r["start_s"]), fmt_s(r["end_s"]), fmt_w(r["power_w"]))
+        con.print(tt)
+    if any(not r["meets"] for r in inst):
+        con.print("[red]![/red] the memory's requirement is not met (see above)")
 
 
 def _pct(v: float) -> str:

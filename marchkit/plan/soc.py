@@ -24,7 +24,7 @@ DEFAULT_FAULTS = "static,classic"
 DEFAULT_PAIRS = "neighbours"
 DEFAULT_TIME_LIMIT = Fraction(10)
 MAX_TIME_LIMIT = Fraction(3600)
-KINDS = ("sram", "regfile", "dram", "rom")
+KINDS = ("sram", "regfile", "dram")
 GENERATE = "generate"
 
 
