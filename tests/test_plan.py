@@ -456,3 +456,33 @@ def test_cli_options_checked(small, cli):
     assert code == 2 and ".png or .svg" in err
     code, out, err = cli("plan", "no/such/file.toml")
     assert code == 2 and "cannot read" in err
+
+
+def test_schedule_cache_checked_on_loading(small, tmp_path):
+    cache = tmp_path / "cache"
+    first = make_plan(read_soc(small), cache_dir=cache).to_json()
+    records = [p for p in cache.rglob("*.json") if '"starts"' in p.read_text()]
+    assert len(records) == 1
+    rec = json.loads(records[0].read_text())
+    # move every memory to time 0: the groups now overlap; the record must be refused
+    rec["starts"] = {k: 0 for k in rec["starts"]}
+    rec["makespan"] = max(r["end_s"] - r["start_s"] for r in first["instances"]) * TICKS_PER_S
+    records[0].write_text(json.dumps(rec))
+    again = make_plan(read_soc(small), cache_dir=cache).to_json()
+    check_schedule_independently(again["instances"], 0.040)
+    assert again["total_test_time_s"] == first["total_test_time_s"]
+    assert not again["schedule"]["solver"].endswith("from the cache")
+
+
+def test_gantt_has_a_bar_per_memory(small, tmp_path):
+    from marchkit.report import plan_figure
+
+    data = make_plan(read_soc(small), cache_dir=tmp_path / "cache").to_json()
+    fig = plan_figure(data)
+    gantt, power = fig.axes[:2]
+    bars = [p for c in gantt.containers for p in c.patches]
+    assert len(bars) == len(data["instances"])
+    # each bar spans its memory's test, in µs (the longest time is 19.2 µs)
+    spans = sorted(round(b.get_width(), 6) for b in bars)
+    assert spans == sorted(round(r["seconds"] * 1e6, 6) for r in data["instances"])
+    assert [t.get_text() for t in gantt.get_yticklabels()][0] == "core_bist"

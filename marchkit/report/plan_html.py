@@ -54,10 +54,11 @@ def plan_html(data: dict) -> str:
     a(f"<h1>{_e(data['soc'])}</h1>")
     g = data["graded"]
     facts = [
-        ("memories", f"{len(inst)} instances of {len(types)} memory types in {len(data['groups'])} BIST groups"),
+        ("memories", f"{len(inst)} instances of {len({t['type'] for t in types})} memory types in "
+                     f"{len(data['groups'])} BIST groups"),
         ("faults", data["faults"]), ("pairs", data["pairs"]),
         ("power budget", f"{_w(s['budget_w'])} (peak drawn {_w(s['peak_w'])})"),
-        ("schedule", f"{status}; {s['solver']} in {s['solve_seconds']:.2g} s"),
+        ("schedule", f"{status}; {s['solver']} (solved in {s['solve_seconds']:.2g} s)"),
         ("grading", f"{g['jobs']} test × memory pairs: {g['computed']} graded ({g['workers']}), "
                     f"{g['cached']} from the cache"),
         ("file", data["file"]),
