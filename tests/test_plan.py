@@ -486,3 +486,8 @@ def test_gantt_has_a_bar_per_memory(small, tmp_path):
     spans = sorted(round(b.get_width(), 6) for b in bars)
     assert spans == sorted(round(r["seconds"] * 1e6, 6) for r in data["instances"])
     assert [t.get_text() for t in gantt.get_yticklabels()][0] == "core_bist"
+
+
+def test_example_test_file_is_clean(cli):
+    code, out, err = cli("check", str(ROOT / "examples" / "harrier_tests.march"), "--strict")
+    assert code == 0, out + err
