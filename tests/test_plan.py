@@ -481,7 +481,7 @@ def test_gantt_has_a_bar_per_memory(small, tmp_path):
     fig = plan_figure(data)
     gantt, power = fig.axes[:2]
     bars = [p for c in gantt.containers for p in c.patches]
-    assert len(bars) == len(data["instances"])
+    assert len(bars) == len(data["instances"])    # no retention pause in these tests
     # each bar spans its memory's test, in µs (the longest time is 19.2 µs)
     spans = sorted(round(b.get_width(), 6) for b in bars)
     assert spans == sorted(round(r["seconds"] * 1e6, 6) for r in data["instances"])
@@ -491,3 +491,32 @@ def test_gantt_has_a_bar_per_memory(small, tmp_path):
 def test_example_test_file_is_clean(cli):
     code, out, err = cli("check", str(ROOT / "examples" / "harrier_tests.march"), "--strict")
     assert code == 0, out + err
+
+
+def test_a_memory_draws_no_power_in_its_retention_pauses():
+    # by hand: A is 4 µs long but accesses only in [0, 1) and [3, 4) µs (a pause between);
+    # B (2 µs, accessing throughout) cannot run beside A's accesses (3 + 3 mW > 5 mW) but fits in
+    # A's pause: 4 µs in all, where a constant-power model needs 6 µs
+    us = Fraction(1, 10**6)
+    a = Task("a", "ga", 4 * us, Fraction(3, 1000), ((0, us), (3 * us, us)))
+    b = Task("b", "gb", 2 * us, Fraction(3, 1000))
+    s = solve([a, b], Fraction(5, 1000), 10)
+    assert s.makespan == 4 * TICKS_PER_S // 10**6 and s.status == "optimal"
+    assert s.starts["b"] - s.starts["a"] == 1 * TICKS_PER_S // 10**6
+    flat = solve([Task("a", "ga", 4 * us, Fraction(3, 1000)), b], Fraction(5, 1000), 10)
+    assert flat.makespan == 6 * TICKS_PER_S // 10**6
+
+
+def test_active_spans_of_a_test_with_pauses():
+    from marchkit.model import make_memory
+    from marchkit.notation import resolve_test
+    from marchkit.plan.planner import active_spans
+
+    # IFA-9 (Dekker et al., IEEE TCAD 1990): 9 operations per address, a pause, 2, a pause, 1
+    # (the 100 ms pauses are the library's choice); 64 words at 100 MHz, one cycle per op
+    mem = make_memory(64, 1, clock="100MHz")
+    spans = active_spans(resolve_test("IFA-9"), mem)
+    ns = Fraction(1, 10**9)
+    assert spans == ((0, 576 * 10 * ns), (576 * 10 * ns + Fraction(1, 10), 128 * 10 * ns),
+                     (704 * 10 * ns + Fraction(2, 10), 64 * 10 * ns))
+    assert active_spans(resolve_test("March C-"), mem) is None

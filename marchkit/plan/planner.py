@@ -105,8 +105,9 @@ class Plan:
                      for o in v.options]}
                 for k, v in self.variants.items()],
             "groups": group_summary(self),
-            "instances": [{k: r[k] for k in ("name", "type", "domain", "group", "test", "start_s", "end_s",
-                                               "seconds", "power_w", "meets")} for r in self.rows],
+            "instances": [dict({k: r[k] for k in ("name", "type", "domain", "group", "test", "start_s", "end_s",
+                                                    "seconds", "power_w", "meets")},
+                               active_s=[[float(a), float(b)] for a, b in r["active"]]) for r in self.rows],
             "graded": {"jobs": self.graded + self.cached, "computed": self.graded, "cached": self.cached,
                        "seconds": round(self.grade_seconds, 3), "workers": self.workers},
         }
@@ -119,12 +120,31 @@ def _notation(test) -> str:
 
 
 def peak_power(plan: Plan) -> Fraction:
-    rows = plan.rows
+    """The most power drawn at once (over the memories' active spans)."""
+    spans = [(a, b, r["watts"]) for r in plan.rows for a, b in r["active"]]
     best = Fraction(0)
-    for r in rows:
-        x = r["start"]
-        best = max(best, sum((q["watts"] for q in rows if q["start"] <= x < q["end"]), Fraction(0)))
+    for x, _, _ in spans:
+        best = max(best, sum((w for a, b, w in spans if a <= x < b), Fraction(0)))
     return best
+
+
+def active_spans(test, mem) -> tuple | None:
+    """(offset, length) in seconds of the runs of march elements of ``test`` on ``mem``
+    between its pauses; None when the test has no pause (active throughout)."""
+    from ..model import schedule
+
+    if not test.delays:
+        return None
+    spans: list = []
+    for seg in schedule(test, mem).segments:
+        if seg.element is None or seg.cycles == 0:
+            continue
+        a, b = seg.start, seg.start + seg.cycles
+        if spans and spans[-1][1] == a:
+            spans[-1] = (spans[-1][0], b)
+        else:
+            spans.append((a, b))
+    return tuple((Fraction(a) / mem.clock_hz, Fraction(b - a) / mem.clock_hz) for a, b in spans)
 
 
 def group_summary(plan: Plan) -> list:
@@ -268,16 +288,18 @@ def _plan(soc, variants, generated, client, cache_dir, progress, connect) -> Pla
     tasks = []
     for inst in soc.instances:
         v = variants[(inst.type, soc.domains[inst.domain])]
-        tasks.append(Task(inst.name, inst.group, v.chosen.seconds, v.watts))
+        tasks.append(Task(inst.name, inst.group, v.chosen.seconds, v.watts, active_spans(v.chosen.test, v.memory)))
     sched = _solve_cached(tasks, soc, cache)
     rows = []
     for inst, task in zip(soc.instances, tasks):
         key = (inst.type, soc.domains[inst.domain])
         v = variants[key]
         s, e = sched.starts[inst.name], sched.ends[inst.name]
+        spans = task.active or ((Fraction(0), task.seconds),)
         rows.append({"name": inst.name, "type": inst.type, "domain": inst.domain, "group": inst.group,
                      "test": v.chosen.test.name or v.chosen.spec, "variant": key,
                      "start": s, "end": e, "start_s": s / TICKS_PER_S, "end_s": e / TICKS_PER_S,
+                     "active": [(Fraction(s, TICKS_PER_S) + o, Fraction(s, TICKS_PER_S) + o + n) for o, n in spans],
                      "seconds": float(v.chosen.seconds), "watts": v.watts, "power_w": float(v.watts),
                      "meets": v.chosen.meets})
     return Plan(soc, variants, rows, sched, run.computed, run.cached, grade_s, tuple(classes),

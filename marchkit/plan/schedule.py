@@ -35,10 +35,33 @@ POWER_UNITS_PER_W = 10**6   # microwatts
 
 @dataclass(frozen=True)
 class Task:
+    """One memory's test.  ``active``: the (offset, length) spans, in seconds from the
+    task's start, during which it accesses the memory and draws ``watts``; between them (a
+    retention pause) it draws nothing.  None: active for its whole length."""
+
     name: str
     group: str
     seconds: Fraction
     watts: Fraction
+    active: tuple | None = None
+
+
+def active_ticks(task: Task, length: int) -> list:
+    """The task's active spans in whole ticks, (offset, length), widened outwards to whole
+    ticks (so the integer model never under-counts power) and merged."""
+    if task.active is None:
+        return [(0, length)]
+    spans = []
+    for off, ln in task.active:
+        a = math.floor(Fraction(off) * TICKS_PER_S)
+        b = min(length, math.ceil((Fraction(off) + Fraction(ln)) * TICKS_PER_S))
+        if b <= a:
+            continue
+        if spans and a <= spans[-1][1]:
+            spans[-1] = (spans[-1][0], max(spans[-1][1], b))
+        else:
+            spans.append((a, b))
+    return [(a, b - a) for a, b in spans] or [(0, length)]
 
 
 @dataclass
@@ -69,23 +92,28 @@ def power_units(watts: Fraction, up: bool = True) -> int:
     return math.ceil(v) if up else math.floor(v)
 
 
-def lower_bound(durations, powers, groups, budget: int) -> int:
+def lower_bound(durations, powers, groups, budget: int, active=None) -> int:
     """max(longest task, busiest group, total energy / budget) — each a bound every
-    schedule obeys."""
+    schedule obeys (energy counted over the active spans only)."""
     if not durations:
         return 0
     load: dict = {}
     for d, g in zip(durations, groups):
         load[g] = load.get(g, 0) + d
-    energy = sum(d * p for d, p in zip(durations, powers))
+    if active is None:
+        active = [[(0, d)] for d in durations]
+    energy = sum(sum(ln for _, ln in a) * p for a, p in zip(active, powers))
     return max(max(durations), max(load.values()), -(-energy // budget) if budget else 0)
 
 
-def list_schedule(durations, powers, groups, budget: int, order=None) -> list[int]:
+def list_schedule(durations, powers, groups, budget: int, order=None, active=None) -> list[int]:
     """Serial schedule-generation: each task, in priority order, at the earliest time after
-    its group's previous task at which the power stays within the budget for its whole
-    length.  Returns start times."""
+    its group's previous task at which the power stays within the budget over all its
+    active spans (``active[i]``: (offset, length) pairs; default the whole task).  Returns
+    start times."""
     n = len(durations)
+    if active is None:
+        active = [[(0, d)] for d in durations]
     if order is None:
         load: dict = {}
         for d, g in zip(durations, groups):
@@ -106,27 +134,32 @@ def list_schedule(durations, powers, groups, budget: int, order=None) -> list[in
             return k + 1
         return k
 
+    def blocked(t, off, ln, p):
+        """None if [t+off, t+off+ln) fits, else the first start after the blocking piece."""
+        x0, x1 = t + off, t + off + ln
+        j = bisect.bisect_right(bp, x0) - 1
+        while j < len(bp) and bp[j] < x1:
+            if level[j] + p > budget:
+                return bp[j + 1] - off      # the last piece is 0 W: j + 1 exists
+            j += 1
+        return None
+
     for i in order:
         d, p = durations[i], powers[i]
         t = group_free.get(groups[i], 0)
-        k = bisect.bisect_right(bp, t) - 1
         while True:
-            # does [t, t + d) fit?  walk the profile from t
-            j, ok = k, True
-            while j < len(bp) and bp[j] < t + d:
-                if level[j] + p > budget:
-                    ok = False
+            for off, ln in active[i]:
+                nxt = blocked(t, off, ln, p)
+                if nxt is not None:
+                    t = max(nxt, t + 1)
                     break
-                j += 1
-            if ok:
+            else:
                 break
-            # restart just after the blocking segment
-            k = j + 1
-            t = bp[k]
         starts[i] = t
-        a, b = split(t), split(t + d)
-        for j in range(a, b):
-            level[j] += p
+        for off, ln in active[i]:
+            a, b = split(t + off), split(t + off + ln)
+            for j in range(a, b):
+                level[j] += p
         group_free[groups[i]] = t + d
     return starts
 
@@ -136,6 +169,7 @@ def solve(tasks: list[Task], budget_w: Fraction, time_limit_s: float = 10.0, thr
     """The shortest schedule of ``tasks`` under ``budget_w`` (see the module docstring)."""
     budget = power_units(budget_w, up=False)
     dur = [max(1, ticks(t.seconds)) for t in tasks]
+    act = [active_ticks(t, d) for t, d in zip(tasks, dur)]
     pw = [power_units(t.watts) for t in tasks]
     grp = [t.group for t in tasks]
     over = [t.name for t, p in zip(tasks, pw) if p > budget]
@@ -143,8 +177,8 @@ def solve(tasks: list[Task], budget_w: Fraction, time_limit_s: float = 10.0, thr
         raise InputError(f"{len(over)} memor{'y draws' if len(over) == 1 else 'ies draw'} more than the "
                          f"whole power budget on its own: {', '.join(over[:5])}"
                          + (" …" if len(over) > 5 else "") + "; raise [power] budget")
-    lb = lower_bound(dur, pw, grp, budget)
-    greedy = list_schedule(dur, pw, grp, budget)
+    lb = lower_bound(dur, pw, grp, budget, act)
+    greedy = list_schedule(dur, pw, grp, budget, active=act)
     g_make = max((s + d for s, d in zip(greedy, dur)), default=0)
     t0 = time.perf_counter()
     if g_make == lb:          # the list schedule meets a lower bound: optimal already
@@ -154,10 +188,13 @@ def solve(tasks: list[Task], budget_w: Fraction, time_limit_s: float = 10.0, thr
     # optimal schedule can be left-justified, so its start times are sums of lengths), with
     # domains small enough for the solver to prove bounds quickly
     unit = 0
-    for d in dur:
+    for d, a in zip(dur, act):
         unit = math.gcd(unit, d)
-    dur_t, greedy_t, lb_t = dur, greedy, lb
+        for off, ln in a:
+            unit = math.gcd(math.gcd(unit, off), ln)
+    dur_t, greedy_t, lb_t, act_t = dur, greedy, lb, act
     dur = [d // unit for d in dur_t]
+    act = [[(o // unit, n // unit) for o, n in a] for a in act_t]
     greedy = [s // unit if s % unit == 0 else None for s in greedy_t]
     lb = -(-lb_t // unit)
 
@@ -165,11 +202,18 @@ def solve(tasks: list[Task], budget_w: Fraction, time_limit_s: float = 10.0, thr
 
     m = cp_model.CpModel()
     horizon = -(-g_make // unit)
-    starts, ivs = [], []
+    starts, ivs, power_ivs, power_dem = [], [], [], []
     for i, d in enumerate(dur):
         s = m.NewIntVar(0, horizon - d, f"s{i}")
         starts.append(s)
         ivs.append(m.NewIntervalVar(s, d, s + d, f"i{i}"))
+        if act[i] == [(0, d)]:
+            power_ivs.append(ivs[-1])
+            power_dem.append(pw[i])
+        else:
+            for k, (off, ln) in enumerate(act[i]):
+                power_ivs.append(m.NewIntervalVar(s + off, ln, s + off + ln, f"a{i}_{k}"))
+                power_dem.append(pw[i])
         if greedy[i] is not None:
             m.AddHint(s, greedy[i])
     by_group: dict = {}
@@ -181,11 +225,11 @@ def solve(tasks: list[Task], budget_w: Fraction, time_limit_s: float = 10.0, thr
         # identical tasks of one group are interchangeable: fix their order
         same: dict = {}
         for i in members:
-            same.setdefault((dur[i], pw[i]), []).append(i)
+            same.setdefault((dur[i], pw[i], tuple(act[i])), []).append(i)
         for eq in same.values():
             for a, b in zip(eq, eq[1:]):
                 m.Add(starts[a] + dur[a] <= starts[b])
-    m.AddCumulative(ivs, pw, budget)
+    m.AddCumulative(power_ivs, power_dem, budget)
     mk = m.NewIntVar(lb, horizon, "makespan")
     for i, d in enumerate(dur):
         m.Add(mk >= starts[i] + d)
@@ -198,14 +242,15 @@ def solve(tasks: list[Task], budget_w: Fraction, time_limit_s: float = 10.0, thr
     elapsed = time.perf_counter() - t0
     if st in (cp_model.OPTIMAL, cp_model.FEASIBLE):
         got = [solver.Value(s) * unit for s in starts]
-        dur = dur_t
+        dur, act = dur_t, act_t
         make = max(g + d for g, d in zip(got, dur))
         bound = max(lb_t, int(math.ceil(solver.BestObjectiveBound())) * unit)
         if st == cp_model.OPTIMAL:
             bound = make
         # left-justify: the serial scheme in order of the solver's start times moves every
         # task as early as the tasks before it allow, never later (Kolisch 1996)
-        shifted = list_schedule(dur, pw, grp, budget, order=sorted(range(len(dur)), key=lambda i: (got[i], i)))
+        shifted = list_schedule(dur, pw, grp, budget, order=sorted(range(len(dur)), key=lambda i: (got[i], i)),
+                                active=act)
         if max(a + d for a, d in zip(shifted, dur)) <= make:
             got = shifted
             make = max(a + d for a, d in zip(got, dur))
@@ -226,7 +271,8 @@ def problem_key(tasks: list[Task], budget_w: Fraction, time_limit_s: float, thre
 
     blob = json.dumps({"marchkit": __version__, "what": "schedule", "budget": power_units(budget_w, up=False),
                        "limit": float(time_limit_s), "threads": int(threads),
-                       "tasks": [[t.name, t.group, max(1, ticks(t.seconds)), power_units(t.watts)] for t in tasks]},
+                       "tasks": [[t.name, t.group, max(1, ticks(t.seconds)), power_units(t.watts),
+                                  active_ticks(t, max(1, ticks(t.seconds)))] for t in tasks]},
                       sort_keys=True)
     return hashlib.sha256(blob.encode()).hexdigest()
 
@@ -274,9 +320,13 @@ def check_schedule(tasks: list[Task], sched: Schedule, budget_w: Fraction) -> li
         for (s1, e1, a), (s2, e2, b) in zip(items, items[1:]):
             if s2 < e1:
                 problems.append(f"{a} and {b} overlap in group {g}")
+    spans = []                         # (start, end, watts) of every active span, in ticks
     for t in tasks:
-        x = sched.starts[t.name]
-        load = sum((Fraction(u.watts) for u in tasks if sched.starts[u.name] <= x < sched.ends[u.name]), Fraction(0))
+        s0 = sched.starts[t.name]
+        for off, ln in active_ticks(t, sched.ends[t.name] - s0):
+            spans.append((s0 + off, s0 + off + ln, Fraction(t.watts)))
+    for x, _, _ in spans:
+        load = sum((w for a, b, w in spans if a <= x < b), Fraction(0))
         if load > budget_w:
             problems.append(f"{float(load):.4g} W at {x} ps exceeds the budget")
     return problems

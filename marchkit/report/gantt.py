@@ -1,6 +1,7 @@
 """The picture of an SoC test plan: one row per BIST group with a bar per memory test (its
-colour says which test, a hatch marks a memory whose requirement no candidate meets), and
-below it the power drawn over time against the budget.
+colour says which test, a hatch marks a memory whose requirement no candidate meets; a test
+with retention pauses is grey where it pauses), and below it the power drawn over time
+against the budget.
 
 Works on the plan's plain data (``Plan.to_json()``), so the report layer needs nothing from
 the planner.  matplotlib is imported here only, when a figure is asked for, and drawn on the
@@ -14,6 +15,7 @@ from .style import (BLUE, GREEN, INK, MUTED, ORANGE, SKY, TRACK, VERMILLION, new
 
 # Okabe & Ito colours, then the same with a lighter tone: tests are told apart by colour
 TEST_COLOURS = (BLUE, ORANGE, GREEN, SKY, VERMILLION, "#CC79A7", "#F0E442", "#7f7f7f")
+PAUSE = "#d0d0d0"     # a retention pause: the memory is not accessed
 _UNITS = (("s", 1.0), ("ms", 1e-3), ("µs", 1e-6), ("ns", 1e-9))
 
 
@@ -26,9 +28,12 @@ def _unit(seconds: float) -> tuple[str, float]:
 
 def power_profile(instances) -> tuple[list, list]:
     """(times, watts) of the power drawn: ``watts[k]`` holds from ``times[k]`` to
-    ``times[k+1]``."""
-    points = sorted({r["start_s"] for r in instances} | {r["end_s"] for r in instances})
-    watts = [sum(r["power_w"] for r in instances if r["start_s"] <= t < r["end_s"]) for t in points]
+    ``times[k+1]``.  A memory draws power over its active spans (``active_s``; a retention
+    pause draws none), or over its whole test when they are not given."""
+    spans = [(a, b, r["power_w"]) for r in instances
+             for a, b in (r.get("active_s") or [(r["start_s"], r["end_s"])])]
+    points = sorted({a for a, _, _ in spans} | {b for _, b, _ in spans})
+    watts = [sum(w for a, b, w in spans if a <= t < b) for t in points]
     return points, watts
 
 
@@ -63,10 +68,19 @@ def plan_figure(data: dict):
         for r in inst:
             batches.setdefault((r["test"], r["meets"]), []).append(r)
         for (test, ok), rs in batches.items():
-            ax.barh([y[r["group"]] for r in rs], [(r["end_s"] - r["start_s"]) / scale for r in rs],
-                    left=[r["start_s"] / scale for r in rs], height=0.72, color=colour[test],
-                    edgecolor="white" if ok else VERMILLION, linewidth=0.6,
-                    hatch=(hatch[test] if ok else "////") or None)
+            paused = [r for r in rs if len(r.get("active_s") or []) > 1]
+            whole = [r for r in rs if r not in paused]
+            for part, face in ((whole, colour[test]), (paused, PAUSE)):
+                if part:
+                    ax.barh([y[r["group"]] for r in part], [(r["end_s"] - r["start_s"]) / scale for r in part],
+                            left=[r["start_s"] / scale for r in part], height=0.72, color=face,
+                            edgecolor="white" if ok else VERMILLION, linewidth=0.6,
+                            hatch=(hatch[test] if ok else "////") or None)
+            # a test with retention pauses: its accessing spans in colour over the grey bar
+            spans = [(y[r["group"]], a, b) for r in paused for a, b in r["active_s"]]
+            if spans:
+                ax.barh([g for g, _, _ in spans], [(b - a) / scale for _, a, b in spans],
+                        left=[a / scale for _, a, _ in spans], height=0.72, color=colour[test], linewidth=0)
         ax.set_yticks(range(rows), groups)
         ax.set_ylim(rows - 0.5, -0.5)
         ax.tick_params(axis="y", length=0, labelsize=7 if rows > 25 else 8)
@@ -78,6 +92,8 @@ def plan_figure(data: dict):
         ax.set_title(f"{data['soc']}: {len(inst)} memories in {rows} BIST groups — total test time "
                      f"{total / scale:.4g} {unit} ({how})", color=INK)
         handles = [Patch(facecolor=colour[t], edgecolor="white", hatch=hatch[t], label=t) for t in tests]
+        if any(len(r.get("active_s") or []) > 1 for r in inst):
+            handles.append(Patch(facecolor=PAUSE, edgecolor="white", label="pause (no access)"))
         if any(not r["meets"] for r in inst):
             handles.append(Patch(facecolor="white", edgecolor=VERMILLION, hatch="////",
                                  label="requirement not met"))
