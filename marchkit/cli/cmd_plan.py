@@ -90,6 +90,12 @@ def run(args) -> int:
             console(stderr=True).print(f"wrote {w}")
         return status
     con = console()
+    if not sys.stdout.isatty():      # tables fit the width asked for (80 columns by default)
+        import os
+
+        from rich.console import Console
+
+        con = Console(highlight=False, soft_wrap=False, width=int(os.environ.get("COLUMNS", "0") or 0) or 80)
     show_plan(data, con)
     for w in written:
         con.print(f"wrote {w}")
@@ -136,12 +142,12 @@ def show_plan(data: dict, con) -> None:
     t = Table(show_edge=False, pad_edge=False, title="test per memory type", title_justify="left",
               title_style="bold")
     for col, just in (("type", "left"), ("memory", "left"), ("clock", "right"), ("n", "right"),
-                      ("test", "left"), ("each", "right"), ("power", "right"), ("req.", "left")):
+                      ("test", "left"), ("each", "right"), ("power", "right")):
         t.add_column(col, justify=just, no_wrap=True)
     for ty in types:
         t.add_row(ty["type"], _geometry(ty["memory"]), format_frequency(ty["clock_hz"]).replace(" ", ""),
-                  str(ty["instances"]), ty["test"] or "—", fmt_s(ty["seconds"]) if ty["seconds"] else "—",
-                  fmt_w(ty["power_w"]), "met" if ty["meets"] else "[bold red]SHORT[/bold red]")
+                  str(ty["instances"]), (ty["test"] or "—") + ("" if ty["meets"] else " [bold red]![/bold red]"),
+                  fmt_s(ty["seconds"]) if ty["seconds"] else "—", fmt_w(ty["power_w"]))
     con.print(t)
     short = [ty for ty in types if not ty["meets"]]
     if short:
@@ -196,7 +202,7 @@ def show_plan(data: dict, con) -> None:
                        fmt_s(r["start_s"]), fmt_s(r["end_s"]), fmt_w(r["power_w"]))
         con.print(tt)
     if any(not r["meets"] for r in inst):
-        con.print("[red]![/red] the memory's requirement is not met (see above)")
+        con.print("[red]![/red] a requirement of this memory is not met (see above)")
 
 
 def _pct(v: float) -> str:
