@@ -42,7 +42,7 @@ def open_client(workers: int | None = None, scheduler: str | None = None):
     from dask.distributed import Client, LocalCluster
 
     for name in ("distributed", "distributed.scheduler", "distributed.nanny", "distributed.worker"):
-        logging.getLogger(name).setLevel(logging.ERROR)
+        logging.getLogger(name).setLevel(logging.CRITICAL)
     if scheduler is not None:
         try:
             client = Client(scheduler, timeout=CONNECT_TIMEOUT_S)
@@ -55,7 +55,7 @@ def open_client(workers: int | None = None, scheduler: str | None = None):
         return
     n = int(workers) if workers is not None else (os.cpu_count() or 1)
     cluster = LocalCluster(n_workers=n, threads_per_worker=1, processes=True, host="127.0.0.1",
-                           dashboard_address=None, silence_logs=logging.ERROR)
+                           dashboard_address=":0", silence_logs=logging.CRITICAL)
     client = Client(cluster)
     try:
         yield client

@@ -35,8 +35,29 @@ def write_html_report(result, path, force: bool = False) -> None:
     return f(result, path, force=force)
 
 
+def plan_figure(data):
+    """The Gantt chart and power profile of an SoC plan (``Plan.to_json()``), a Figure."""
+    from .gantt import plan_figure as f
+
+    return f(data)
+
+
+def write_plan_gantt(data, path, force: bool = False):
+    from .gantt import write_plan_gantt as f
+
+    return f(data, path, force=force)
+
+
+def write_plan_report(data, path, force: bool = False) -> None:
+    """A self-contained HTML page of an SoC plan (``Plan.to_json()``), written atomically."""
+    from .plan_html import write_plan_report as f
+
+    return f(data, path, force=force)
+
+
 __all__ = [
     "DEFAULT_SORT", "SORT_KEYS", "Comparison", "Row", "check_sort_key", "compare_results",
     "compare_tests", "dominates", "pareto_flags", "sort_rows", "unique_labels",
     "comparison_figure", "write_comparison_plot", "html_report", "write_html_report",
+    "plan_figure", "write_plan_gantt", "write_plan_report",
 ]

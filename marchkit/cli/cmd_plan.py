@@ -1,0 +1,211 @@
+"""`marchkit plan SOC.toml`: the test of every memory of an SoC and a schedule of them under a
+power budget, graded on Dask."""
+
+from __future__ import annotations
+
+import json
+import sys
+
+
+def register(sub):
+    p = sub.add_parser(
+        "plan", help="choose a test per memory of an SoC and schedule them under a power budget",
+        description="Read an SoC file (memory types, instances, clock domains, BIST groups, required "
+        "coverage per fault class, candidate tests, power per memory and the budget), grade every "
+        "candidate once per memory type on a Dask cluster (results cached on disk), choose per type "
+        "the shortest test that meets the requirement, and schedule the tests: the memories of one "
+        "BIST group one after the other, all memories under test together within the power budget "
+        "(CP-SAT, optimal or with a proven bound). The file format is described in DEVELOPERS.md.",
+    )
+    p.add_argument("soc", metavar="SOC.toml")
+    g = p.add_argument_group("where to grade")
+    g.add_argument("--scheduler", metavar="ADDRESS",
+                   help="a running Dask scheduler, e.g. tcp://127.0.0.1:8786 (default: a local cluster)")
+    g.add_argument("--workers", type=int, metavar="N",
+                   help="worker processes of the local cluster (default: one per core)")
+    g = p.add_argument_group("output")
+    g.add_argument("--json", action="store_true", help="print the plan as JSON (every instance, its test "
+                   "and place in the schedule, and the total test time)")
+    g.add_argument("--report", metavar="FILE.html", help="also write a self-contained HTML report")
+    g.add_argument("--gantt", metavar="FILE.png", help="also draw the schedule (.png or .svg)")
+    g.add_argument("--force", action="store_true", help="replace existing output files")
+    p.set_defaults(func=run)
+
+
+def run(args) -> int:
+    from ..errors import InputError
+    from ..plan.cluster import _check, open_client
+    from ..plan.planner import make_plan
+    from ..plan.soc import read_soc
+    from .cmd_compare import _check_output
+    from .common import console
+
+    if args.workers is not None and args.scheduler is not None:
+        raise InputError("--workers sizes the local cluster; with --scheduler the cluster's own workers grade")
+    _check(args.workers, args.scheduler)
+    if args.report:
+        if not args.report.lower().endswith((".html", ".htm")):
+            raise InputError(f"{args.report}: the report is an HTML file (.html)")
+        _check_output(args.report, args.force)
+    if args.gantt:
+        _check_output(args.gantt, args.force, plot=True)
+    soc = read_soc(args.soc)          # everything in the file is checked before any grading
+
+    def connect():
+        return open_client(args.workers, args.scheduler)
+
+    prog = None
+    if sys.stderr.isatty() and not args.json:
+        from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
+
+        prog = Progress(TextColumn("{task.description}"), BarColumn(), TextColumn("{task.fields[count]}"),
+                        TimeElapsedColumn(), console=console(stderr=True), transient=True)
+        task = prog.add_task("grading", total=1, count="")
+
+        def progress(done, total):
+            prog.update(task, total=max(total, 1), completed=done, count=f"{done}/{total}")
+    else:
+        progress = None
+    if prog:
+        with prog:
+            plan = make_plan(soc, connect=connect, progress=progress)
+    else:
+        plan = make_plan(soc, connect=connect)
+    data = plan.to_json()
+    written = []
+    if args.gantt:
+        from ..report import write_plan_gantt
+
+        write_plan_gantt(data, args.gantt, force=args.force)
+        written.append(args.gantt)
+    if args.report:
+        from ..report import write_plan_report
+
+        write_plan_report(data, args.report, force=args.force)
+        written.append(args.report)
+    status = 0 if data["requirements_met"] else 1
+    if args.json:
+        print(json.dumps(data, indent=2, ensure_ascii=False))
+        for w in written:
+            console(stderr=True).print(f"wrote {w}")
+        return status
+    con = console()
+    if not sys.stdout.isatty():      # tables fit the width asked for (80 columns by default)
+        import os
+
+        from rich.console import Console
+
+        con = Console(highlight=False, soft_wrap=False, width=int(os.environ.get("COLUMNS", "0") or 0) or 80)
+    show_plan(data, con)
+    for w in written:
+        con.print(f"wrote {w}")
+    return status
+
+
+def fmt_s(seconds: float) -> str:
+    from ..report.compare import format_time
+
+    return format_time(seconds)
+
+
+def fmt_w(watts: float) -> str:
+    for unit, scale in (("W", 1), ("mW", 1e3), ("µW", 1e6)):
+        if watts * scale >= 1 or unit == "µW":
+            return f"{watts * scale:.3g} {unit}"
+    return f"{watts} W"  # pragma: no cover
+
+
+def _geometry(m: dict) -> str:
+    return f"{m['words']}×{m['bits']}" + (f" m{m['mux']}" if m["mux"] > 1 else "")
+
+
+def show_plan(data: dict, con) -> None:
+    from rich.table import Table
+
+    from ..report.compare import format_frequency
+
+    inst = data["instances"]
+    types = data["types"]
+    groups = data["groups"]
+    domains = sorted({i["domain"] for i in inst})
+    con.print(f"[bold]{data['soc']}[/bold]: {len(inst)} memories of {len({t['type'] for t in types})} "
+              f"types, {len(groups)} BIST groups, {len(domains)} clock domain{'s' if len(domains) != 1 else ''}")
+    s = data["schedule"]
+    con.print(f"faults {data['faults']}   pairs {data['pairs']}   power budget {fmt_w(s['budget_w'])}")
+    g = data["graded"]
+    if g["computed"]:
+        con.print(f"graded {g['jobs']} test × memory pairs: {g['computed']} on {g['workers']}, "
+                  f"{g['cached']} from the cache ({g['seconds']:.3g} s)")
+    else:
+        con.print(f"graded {g['jobs']} test × memory pairs: all from the cache ({g['seconds']:.3g} s)")
+
+    t = Table(show_edge=False, pad_edge=False, title="test per memory type", title_justify="left",
+              title_style="bold")
+    for col, just in (("type", "left"), ("memory", "left"), ("clock", "right"), ("n", "right"),
+                      ("test", "left"), ("each", "right"), ("power", "right")):
+        t.add_column(col, justify=just, no_wrap=True)
+    for ty in types:
+        t.add_row(ty["type"], _geometry(ty["memory"]), format_frequency(ty["clock_hz"]).replace(" ", ""),
+                  str(ty["instances"]), (ty["test"] or "—") + ("" if ty["meets"] else " [bold red]![/bold red]"),
+                  fmt_s(ty["seconds"]) if ty["seconds"] else "—", fmt_w(ty["power_w"]))
+    con.print(t)
+    short = [ty for ty in types if not ty["meets"]]
+    if short:
+        con.print("[bold red]requirements no candidate meets[/bold red]")
+        con.print("(these memories would ship less tested than required)")
+        for ty in short:
+            for u in ty["unmet"]:
+                con.print(f"  {ty['type']} at {format_frequency(ty['clock_hz'])}: {u['class']} ≥ "
+                          f"{u['required']:g} % — best {_pct(u['best'])} % ({u['best_test']})")
+    status = s["status"]
+    how = ("optimal" if status == "optimal" else
+           f"feasible; lower bound {fmt_s(s['lower_bound_s'])}, gap {100 * s['gap']:.1f} %")
+    con.print(f"[bold]total test time {fmt_s(data['total_test_time_s'])}[/bold]  ({how}; {s['solver']}, "
+              f"{s['solve_seconds']:.2g} s)")
+    con.print(f"peak power {fmt_w(s['peak_w'])} of {fmt_w(s['budget_w'])}")
+
+    by_group: dict = {}
+    for r in inst:
+        by_group.setdefault(r["group"], []).append(r)
+    gt = Table(show_edge=False, pad_edge=False, title="BIST groups", title_justify="left", title_style="bold")
+    for col, just in (("group", "left"), ("domain", "left"), ("memories", "right"), ("busy", "right"),
+                      ("start", "right"), ("end", "right")):
+        gt.add_column(col, justify=just, no_wrap=True)
+    for grp in sorted(groups, key=lambda x: (-x["end_s"], x["group"])):
+        gt.add_row(grp["group"], grp["domain"], str(grp["instances"]), fmt_s(grp["busy_s"]),
+                   fmt_s(grp["start_s"]), fmt_s(grp["end_s"]))
+    con.print(gt)
+    order = sorted(groups, key=lambda x: (-x["end_s"], x["group"]))
+    for grp in order:
+        if grp["instances"] < 2:
+            continue
+        rows = sorted(by_group[grp["group"]], key=lambda r: (r["start_s"], r["name"]))
+        tt = Table(show_edge=False, pad_edge=False, title=f"group {grp['group']} ({grp['domain']})",
+                   title_justify="left", title_style="bold")
+        for col, just in (("memory", "left"), ("type", "left"), ("test", "left"), ("start", "right"),
+                          ("end", "right"), ("power", "right")):
+            tt.add_column(col, justify=just, no_wrap=True, overflow="ellipsis")
+        for r in rows:
+            tt.add_row(r["name"], r["type"], r["test"] + ("" if r["meets"] else " [red]![/red]"),
+                       fmt_s(r["start_s"]), fmt_s(r["end_s"]), fmt_w(r["power_w"]))
+        con.print(tt)
+    singles = [by_group[g["group"]][0] for g in order if g["instances"] == 1]
+    if singles:
+        tt = Table(show_edge=False, pad_edge=False, title="memories on a controller of their own",
+                   title_justify="left", title_style="bold")
+        for col, just in (("memory", "left"), ("group", "left"), ("test", "left"), ("start", "right"),
+                          ("end", "right"), ("power", "right")):
+            tt.add_column(col, justify=just, no_wrap=True, overflow="ellipsis")
+        for r in singles:
+            tt.add_row(r["name"], "" if r["group"] == r["name"] else r["group"],
+                       r["test"] + ("" if r["meets"] else " [red]![/red]"),
+                       fmt_s(r["start_s"]), fmt_s(r["end_s"]), fmt_w(r["power_w"]))
+        con.print(tt)
+    if any(not r["meets"] for r in inst):
+        con.print("[red]![/red] a requirement of this memory is not met (see above)")
+
+
+def _pct(v: float) -> str:
+    from ..report.compare import percent_text
+
+    return percent_text(v, 1)
