@@ -253,6 +253,7 @@ class MemorySetup:
         return np.where(wa == wv, SAME, np.where(ra < rv, AFIRST, VFIRST))
 
     def pair_counts_explicit(self, a, v):
+        """(4, K, K) int64 counts over explicit cell pairs ``a``, ``v`` (m,) int64."""
         K = self.K
         s = self.pair_structure(a, v)
         key = (s * K + self.cell_key[a].astype(np.int64)) * K + self.cell_key[v]
@@ -368,6 +369,7 @@ class MemorySetup:
         return {st: c.reshape(U, U) for st, c in cnt.items()}
 
     def _add_word_pairs(self, cnt, a, b, wk, U):
+        """Add word pairs ``a``, ``b`` (m,) int64 to ``cnt`` ({structure: (U·U,) int64})."""
         first = self.rank[a] < self.rank[b]
         code = wk[a] * U + wk[b]
         cnt[AFIRST] += np.bincount(code[first], minlength=U * U)

@@ -95,6 +95,7 @@ class RetentionFast(FastPath):
             sval = np.array([0, 1, 0, 1], dtype=np.int8)
 
             def transition(si, up):
+                """(end state (n·C, 4) intp, detected (n·C, 4) bool) of segment ``si`` run ⇑/⇓."""
                 psi = prev[si]
                 if psi is None:
                     last0 = np.zeros((n, 1, 4), dtype=np.int64)
