@@ -97,7 +97,6 @@ def sweep_orders(prep, reach, transition):
     segs = prep.sched.segments
     last_run = segs[-1].run if segs else 0
     M, NS = reach.shape
-    rows = np.broadcast_to(np.arange(M)[:, None], (M, NS))
     alive = {(): reach}
     cache = {}
     for si, seg in enumerate(segs):
@@ -120,7 +119,8 @@ def sweep_orders(prep, reach, transition):
                 if not keep.any():
                     continue
                 nr = np.zeros((M, NS), dtype=bool)
-                nr[rows[keep], end[keep]] = True
+                for e in range(NS):         # reached state e from some kept state
+                    nr[:, e] = (keep & (end == e)).any(axis=1)
                 if seg.order == "any":
                     c = dict(chosen)
                     if seg.run < last_run:
