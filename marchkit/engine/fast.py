@@ -85,7 +85,7 @@ def sweep_orders(prep, reach, transition):
     """Whether some choice of ⇕ orders leaves each key undetected — without 2^k scenarios.
 
     ``reach`` (M, NS) bool: the states (of NS per key) each of M keys may start in.
-    ``transition(si, up)`` → ``(end, det)``, both (M, NS): the state (intp) each start state
+    ``transition(si, up)`` → ``(end, det)``, both (M, NS): the state (small int) each start state
     is in after element segment ``si`` run ⇑ (``up``) or ⇓, and whether a read detected on
     the way (bool).  It is called at most twice per segment.  The set of reachable undetected
     states is carried from segment to segment (see :mod:`marchkit.engine.core`); with several

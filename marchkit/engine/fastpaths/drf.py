@@ -29,7 +29,16 @@ def _columns(prep):
 
 
 def _visit_times(prep, si, up):
-    """(n, 1) int64: cycle of the first op of each word's visit in segment ``si``."""
+    """(n, 1) int64: cycle of the start of each word's visit in segment ``si`` (cached)."""
+    cache = prep.__dict__.setdefault("_visit_cache", {})
+    if (si, up) not in cache:
+        if len(cache) > 8:
+            cache.clear()
+        cache[(si, up)] = _visit_times_uncached(prep, si, up)
+    return cache[(si, up)]
+
+
+def _visit_times_uncached(prep, si, up):
     seg = prep.sched.segments[si]
     pos = prep.rank if up else prep.n - 1 - prep.rank
     return (seg.start + pos.astype(np.int64) * seg.per_address)[:, None]
@@ -99,7 +108,7 @@ class RetentionFast(FastPath):
             # depends on the (possibly decayed) value alone: so run each element from the two
             # values with no decay at its first op, and pick per state.
             def transition(si, up):
-                """(end state (n·C, 4) intp, detected (n·C, 4) bool) of segment ``si`` run ⇑/⇓."""
+                """(end state (n·C, 4) int8, detected (n·C, 4) bool) of segment ``si`` run ⇑/⇓."""
                 seg = segs[si]
                 t0 = _visit_times(prep, si, up) + seg.op_offsets[0]          # (n, 1) int64
                 psi = prev[si]
@@ -112,9 +121,9 @@ class RetentionFast(FastPath):
                 for v in (0, 1):
                     f = np.full((n, C), -1, dtype=np.int8)
                     v1, _ = run_seg(si, up, np.full((n, C), v, dtype=np.int8), t0, f, code=False)
-                    ends.append(v1.astype(np.intp) + (2 if up else 0))
+                    ends.append(v1 + np.int8(2 if up else 0))
                     dets.append(f >= 0)
-                end = np.empty((n, C, 4), dtype=np.intp)
+                end = np.empty((n, C, 4), dtype=np.int8)
                 det = np.empty((n, C, 4), dtype=bool)
                 for st in range(4):
                     v, pu = st & 1, st >> 1
