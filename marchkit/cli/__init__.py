@@ -9,7 +9,7 @@ from __future__ import annotations
 import argparse
 import sys
 
-COMMANDS = ("library", "show", "check", "faults", "grade", "compare", "export", "demo")
+COMMANDS = ("library", "show", "check", "faults", "grade", "compare", "export", "demo", "generate")
 
 
 class Parser(argparse.ArgumentParser):

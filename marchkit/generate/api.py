@@ -36,6 +36,7 @@ class Generated:
     keys: int = 0
     max_element: int = 6
     origin: str = "search"          # "search" | "like"
+    remote_levels: int = 0          # bounds of the exact search run on the executor
 
     def to_json(self) -> dict:
         from ..notation import format_notation
@@ -55,6 +56,7 @@ class Generated:
             "first_solution_seconds": round(self.first_solution_seconds, 3),
             "stopped": self.stopped or None,
             "max_element": self.max_element,
+            "distributed_bounds": self.remote_levels,
         }
 
 
@@ -130,7 +132,7 @@ def _confirm(res, kinds_full, what="generated test"):
 
 def generate(faults="static", mem=None, pairs="neighbours", retention=None, *, max_length=None,
              time_limit=None, executor=None, max_element=6, progress=None, options="",
-             beam_width=50, now=None) -> Generated:
+             beam_width=50, now=None, local_nodes=20_000, exact=True) -> Generated:
     """The shortest march test detecting ``faults`` on ``mem`` (see the package docstring).
 
     ``executor``: None (serial), an object with ``submit``/``gather``, or a callable returning
@@ -175,7 +177,9 @@ def generate(faults="static", mem=None, pairs="neighbours", retention=None, *, m
             bad_canon.add(group_canon(g.subs))
     for g in groups:
         if group_canon(g.subs) in bad_canon:
-            excluded.append((g.kind.text, g.structure, _undetectable_reason(g, max_element)))
+            item = (g.kind.text, g.structure, _undetectable_reason(g, max_element))
+            if item not in excluded:
+                excluded.append(item)
     kept = [g for g, good in zip(uniq, ok) if good]
     if not kept:
         raise GenerateError("no march test detects any of the selected faults on this memory: "
@@ -190,7 +194,7 @@ def generate(faults="static", mem=None, pairs="neighbours", retention=None, *, m
             f"no test of {max_length} operations per address can detect the selection: "
             f"{hard.describe()} alone needs {root}")
     out = search(sub, max_length=max_length, time_limit=time_limit, executor=executor,
-                 progress=progress, beam_width=beam_width)
+                 progress=progress, beam_width=beam_width, local_nodes=local_nodes, exact=exact)
     if max_length is not None and out.length > int(max_length):
         if out.lower_bound > int(max_length) or out.proven:
             raise GenerateError(f"no test of at most {max_length} operations per address detects the "
@@ -218,7 +222,8 @@ def generate(faults="static", mem=None, pairs="neighbours", retention=None, *, m
     bad_kinds = {f for f, _, _ in excluded} | {f for f, _ in unsupported}
     _confirm(res, {k.text for k in selection.kinds} - bad_kinds)
     return Generated(test, out.length, proven, out.lower_bound, res, excluded, unsupported, out.nodes,
-                     time.time() - t0, out.first_solution_s, out.stopped, len(kept), max_element)
+                     time.time() - t0, out.first_solution_s, out.stopped, len(kept), max_element,
+                     remote_levels=out.remote_levels)
 
 
 # ---------------------------------------------------------------------------------------

@@ -295,10 +295,11 @@ class SearchOutcome:
     first_solution_s: float
     elapsed_s: float
     stopped: str = ""          # "", "time limit", "interrupted"
+    remote_levels: int = 0     # bounds searched on the executor
 
 
 def search(prob: Problem, max_length=None, time_limit=None, executor=None, chunks=None, progress=None,
-           beam_width=50):
+           beam_width=50, local_nodes=20_000, exact=True):
     """Shortest test over the problem's groups.  ``executor``: None (serial) or an object with
     ``submit``/``gather`` (e.g. a dask.distributed Client).  ``progress(dict)`` is called as
     the search goes on."""
@@ -334,22 +335,29 @@ def search(prob: Problem, max_length=None, time_limit=None, executor=None, chunk
 
     report()
     opened = None
+    factory = executor if (callable(executor) and not hasattr(executor, "submit")) else None
+    client = None if factory is not None else executor
+    prev_nodes = 0
+    remote_levels = 0
     try:
-        if callable(executor) and not hasattr(executor, "submit") and lb < best_len and not stopped:
-            opened = executor()                 # a context manager giving the executor, opened lazily
-            executor = opened.__enter__()
-        elif callable(executor) and not hasattr(executor, "submit"):
-            executor = None
-        if executor is not None and hasattr(executor, "scatter"):
-            shared = executor.scatter(prob, broadcast=True)
         L = lb
-        while L < best_len and not stopped:
+        while exact and L < best_len and not stopped:
             if max_length is not None and L > max_length:
                 break
             roots = prob.first_elements(L).tolist()
             parts = _chunks(roots, n_chunks)
             result = None
             timed_out = False
+            level_start = nodes
+            # small levels run here; the executor takes the levels worth shipping
+            remote = (factory is not None or client is not None) and prev_nodes >= local_nodes
+            if remote and client is None:
+                opened = factory()
+                client = opened.__enter__()
+            if remote and shared is None and hasattr(client, "scatter"):
+                shared = client.scatter(prob, broadcast=True)
+            executor = client if remote else None
+            remote_levels += bool(remote)
             if executor is None:
                 for part in parts:
                     status, path, k = _dfs_task(prob, part, L, deadline)
@@ -388,6 +396,7 @@ def search(prob: Problem, max_length=None, time_limit=None, executor=None, chunk
                 stopped = "time limit"
                 break
             lb = L + 1
+            prev_nodes = nodes - level_start
             report()
             L += 1
     except KeyboardInterrupt:
@@ -396,7 +405,8 @@ def search(prob: Problem, max_length=None, time_limit=None, executor=None, chunk
         if opened is not None:
             opened.__exit__(None, None, None)
     proven = lb >= best_len and not stopped
-    return SearchOutcome(best, best_len, proven, min(lb, best_len), nodes, t_first, time.time() - t0, stopped)
+    return SearchOutcome(best, best_len, proven, min(lb, best_len), nodes, t_first, time.time() - t0, stopped,
+                         remote_levels)
 
 
 def path_items(prob: Problem, path):
