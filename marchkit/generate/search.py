@@ -421,6 +421,9 @@ def path_items(prob: Problem, path):
     return out
 
 
+SCORE_UNDONE = 0
+
+
 def beam(prob: Problem, width=400, upper=None, deadline=None, per_node=None):
     """Beam search by test length: for every length g keep the ``width`` prefixes with the
     least total remaining work (sum over keys of their exact distances).  Returns the shortest
@@ -451,7 +454,8 @@ def beam(prob: Problem, width=400, upper=None, deadline=None, per_node=None):
             idx, C, h = ch
             n = C.shape[1]
             H = prob.d[es.fend[0 if first else f, :n][None, :], C]
-            tot = (np.minimum.reduceat(H, prob.starts, axis=0) if not prob.singletons else H).sum(axis=0)
+            Hg = (np.minimum.reduceat(H, prob.starts, axis=0) if not prob.singletons else H)
+            tot = Hg.sum(axis=0) + SCORE_UNDONE * (Hg > 0).sum(axis=0)
             done = idx[h[idx] == 0]
             if done.size:     # complete tests among the children: keep the shortest
                 e = int(done[np.lexsort((done, es.cost[done]))][0])
