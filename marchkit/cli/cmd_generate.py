@@ -148,7 +148,10 @@ def run(args) -> int:
         con.print(f"... and {len(res.excluded) - 10} more excluded keys")
     for f, reason in res.unsupported:
         con.print(f"not searched {f}: {reason}")
-    con.print(f"[dim]{res.seconds:.3g} s (first solution after {res.first_solution_seconds:.3g} s)[/dim]")
+    if res.origin == "like":
+        con.print(f"[dim]{res.seconds:.3g} s[/dim]")
+    else:
+        con.print(f"[dim]{res.seconds:.3g} s (first solution after {res.first_solution_seconds:.3g} s)[/dim]")
     if args.output:
         con.print(f"written to {args.output}")
     return 0

@@ -170,15 +170,12 @@ class MaskGraph:
     def __init__(self, st: SubTables, es: ElementSet):
         masks = [0]
         idx = {0: 0}
-        rows = {0: [], 1: []}
-        todo = [st.init_mask] if st.init_mask != 0 else []
         if st.init_mask not in idx:
             idx[st.init_mask] = len(masks)
             masks.append(st.init_mask)
-        i = 0
         pending = list(masks)
         done_rows: dict = {}
-        while pending:
+        while pending:                      # breadth-first over the masks reachable from the start
             m = pending.pop(0)
             for f in (0, 1):
                 nxt = mask_image(st.img[f], m)
@@ -190,7 +187,6 @@ class MaskGraph:
                         pending.append(u)
                     out[nxt == u] = idx[u]
                 done_rows[(f, m)] = out
-        del todo, i, rows
         M = len(masks)
         self.masks = masks
         self.index = idx
