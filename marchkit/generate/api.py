@@ -183,9 +183,10 @@ def generate(faults="static", mem=None, pairs="neighbours", retention=None, *, m
     from ..faults import DEFAULT_RETENTION, parse_pairs, select_faults
     from ..grade import grade
     from ..notation import format_notation
-    from .keys import closed_under, complement, discover, group_canon, mirror
-    from .search import build_problem, path_items, search
-    from .tables import INF
+    import numpy as np
+
+    from .keys import discover, group_canon
+    from .search import build_problem, group_distances, path_items, search
 
     t0 = time.time()
     _check_limits(max_length, time_limit, max_element)
@@ -206,16 +207,9 @@ def generate(faults="static", mem=None, pairs="neighbours", retention=None, *, m
             uniq.append(g)
     if progress:
         progress({"phase": "tables", "keys": len(uniq)})
-    prob = build_problem(uniq, max_element)
-    from .search import group_distances
-
-    gd = group_distances(prob)
-    ok = [int(x) < INF for x in gd]
+    prob, ok, reps = build_problem(uniq, max_element)
     excluded = []
-    bad_canon = set()
-    for g, good in zip(uniq, ok):
-        if not good:
-            bad_canon.add(group_canon(g.subs))
+    bad_canon = {group_canon(g.subs) for g, good in zip(uniq, ok) if not good}
     for g in groups:
         if group_canon(g.subs) in bad_canon:
             item = (g.kind.text, g.structure, _undetectable_reason(g, max_element))
@@ -225,12 +219,11 @@ def generate(faults="static", mem=None, pairs="neighbours", retention=None, *, m
     if not kept:
         raise GenerateError("no march test detects any of the selected faults on this memory: "
                             + "; ".join(f"{f} ({w})" for f, w, _ in excluded[:4]))
-    sub = prob.subset(ok)
-    sub.comp_sym = closed_under(kept, complement)
-    sub.mirror_sym = closed_under(kept, mirror)
+    sub = prob
     root = sub.root_bound()
     if max_length is not None and int(max_length) < root:
-        hard = max(zip(gd, uniq), key=lambda x: int(x[0]) if int(x[0]) < INF else -1)[1]
+        gd = group_distances(sub)
+        hard = reps[int(np.argmax(gd))]
         raise GenerateError(
             f"no test of {max_length} operations per address can detect the selection: "
             f"{hard.describe()} alone needs {root}")
@@ -244,8 +237,8 @@ def generate(faults="static", mem=None, pairs="neighbours", retention=None, *, m
                             f"before the search stopped ({out.stopped or 'limit'}); the best has {out.length}")
     items = path_items(sub, out.path)
     if not out.proven:
-        items = _trim(kept, items, None if time_limit is None else t0 + 2 * float(time_limit))
-    items = _relax_any(kept, items)
+        items = _trim(reps, items, None if time_limit is None else t0 + 2 * float(time_limit))
+    items = _relax_any(reps, items)
     length = sum(len(ops) for _, ops in items)
     if not _items_detect_all(kept, items):   # pragma: no cover - the tables and the direct simulation agree
         raise ConfirmationError("internal error: the search's test does not detect every key")
@@ -267,7 +260,7 @@ def generate(faults="static", mem=None, pairs="neighbours", retention=None, *, m
     bad_kinds = {f for f, _, _ in excluded} | {f for f, _ in unsupported}
     _confirm(res, {k.text for k in selection.kinds} - bad_kinds)
     return Generated(test, length, proven, out.lower_bound, res, excluded, unsupported, out.nodes,
-                     time.time() - t0, out.first_solution_s, out.stopped, len(kept), max_element,
+                     time.time() - t0, out.first_solution_s, out.stopped, len(reps), max_element,
                      remote_levels=out.remote_levels)
 
 

@@ -125,13 +125,19 @@ class Problem:
 
 
 def build_problem(groups, max_element=6, progress=None):
-    """Tables for the given groups (list of :class:`keys.Group`).  Returns (Problem, info)
-    where info lists, per group, its sub-key indices and whether it can be detected."""
-    from .keys import canonical, closed_under, complement, mirror
+    """Tables for the given groups (list of :class:`keys.Group`).
+
+    Returns ``(problem, detectable, reps)``: ``detectable[i]`` tells whether any march test in
+    the space detects group i.  The problem holds a reduced family: in each group the runs
+    that can never detect are dropped (exact: a group is detected when any run detects it),
+    groups with the same runs are merged, and a group whose runs include all runs of another
+    is dropped (detecting the other detects it).  ``reps[j]``: an input group standing for
+    reduced group j (for messages)."""
+    from .keys import canonical, complement, mirror
 
     es = element_set(max_element)
     cache: dict = {}
-    graphs = []
+    graphs, reps_sk = [], []
     members = []
     for gi, g in enumerate(groups):
         ids = []
@@ -141,27 +147,54 @@ def build_problem(groups, max_element=6, progress=None):
                 st = SubTables(sk, es)
                 cache[c] = len(graphs)
                 graphs.append(MaskGraph(st, es))
+                reps_sk.append(sk)
             ids.append(cache[c])
         members.append(ids)
         if progress:
             progress(gi + 1, len(groups))
+    first = [gr.first_distance(es) for gr in graphs]
+    sets = [frozenset(u for u in ids if first[u] < INF) for ids in members]
+    detectable = [bool(x) for x in sets]
+    uniq: dict = {}
+    for gi, x in enumerate(sets):
+        if x and x not in uniq:
+            uniq[x] = gi
+    fam = sorted(uniq, key=lambda x: (len(x), sorted(x)))
+    kept = []
+    for x in fam:                       # smallest first: a superset of a kept set is implied
+        if not any(y < x for y in kept):
+            kept.append(x)
+    reps = [groups[uniq[x]] for x in kept]
+
+    def closed(fn):
+        have = set(kept)
+        for x in kept:
+            img = set()
+            for u in x:
+                c = canonical(fn(reps_sk[u]))
+                if c not in cache:
+                    return False
+                img.add(cache[c])
+            if frozenset(img) not in have:
+                return False
+        return True
+
     offs = np.cumsum([0] + [len(gr.masks) for gr in graphs])
     T = np.concatenate([gr.T + offs[i] for i, gr in enumerate(graphs)], axis=1) if graphs else np.zeros((2, 0, es.size), np.int32)
     d = np.concatenate([gr.d for gr in graphs], axis=1) if graphs else np.zeros((2, 0), np.int32)
-    first = [gr.first_distance(es) for gr in graphs]
     flat, starts, fd = [], [], []
-    for ids in members:
+    for x in kept:
         starts.append(len(flat))
-        for u in ids:
+        for u in sorted(x):
             flat.append(offs[u] + graphs[u].init)
             fd.append(first[u])
     prob = Problem(
         max_element=max_element, T=T.astype(np.int32), d=d.astype(np.int32),
         init=np.array(flat, dtype=np.int32), first_d=np.array(fd, dtype=np.int32),
-        starts=np.array(starts, dtype=np.int64), singletons=all(len(m) == 1 for m in members),
-        comp_sym=closed_under(groups, complement), mirror_sym=closed_under(groups, mirror), es=es,
+        starts=np.array(starts, dtype=np.int64), singletons=all(len(x) == 1 for x in kept),
+        comp_sym=closed(complement), mirror_sym=closed(mirror), es=es,
     )
-    return prob
+    return prob, detectable, reps
 
 
 def group_distances(prob: Problem) -> np.ndarray:
