@@ -185,6 +185,14 @@ def test_cli_writes_library_file_that_grade_takes(cli, tmp_path):
     assert "--faults " + CLASSIC in t.source and set(CLASSIC.split(",")) <= set(t.targets)
     code, text, err = cli("grade", str(out), "--faults", CLASSIC, "--words", "16", "--json")
     assert code == 0 and json.loads(text)["total"]["coverage"] == 1.0
+    code, text, err = cli("compare", str(out), "March C-", "--faults", CLASSIC, "--words", "16")
+    assert code == 0, err
+    csv = tmp_path / "gen.csv"
+    code, text, err = cli("export", str(out), "--words", "16", "--format", "csv", "-o", str(csv))
+    assert code == 0, err
+    assert len(csv.read_text().splitlines()) == 1 + 10 * 16       # header + 10n cycles
+    code, text, err = cli("generate", "--faults", CLASSIC, "--words", "16", "--workers", "0", "-o", str(out))
+    assert code == 2 and "exists" in err
 
 
 def test_cli_json_contract(cli):
