@@ -341,3 +341,14 @@ def test_proven_length_matches_brute_force(fault):
         assert not any(detects(t) for t in _all_tests(n, 4)), n
     items = [(e.order, tuple((o.kind, o.value) for o in e.ops)) for e in g.test.elements]
     assert detects(items)
+
+
+def test_cli_like_and_not_searched_families(cli):
+    code, out, err = cli("generate", "--faults", "SAF,TF", "--words", "8", "--like", "MATS++", "--json")
+    assert code == 0, err
+    d = json.loads(out)
+    # MATS++ (6n, van de Goor 1991) detects SAF and TF; the shortened test keeps that
+    assert d["length"] <= 6 and d["grade"]["total"]["coverage"] == 1.0 and d["proven_minimal"] is False
+    code, out, err = cli("generate", "--faults", "SAF,SOF", "--words", "8", "--workers", "0")
+    assert code == 0, err
+    assert "not searched SOF" in out
