@@ -213,6 +213,8 @@ def test_cli_json_contract(cli):
     (["--faults", CLASSIC, "--max-length", "0"], "--max-length"),
     (["--faults", CLASSIC, "--time-limit", "-1"], "--time-limit"),
     (["--faults", "SOF"], "nothing to search"),
+    (["--faults", CLASSIC, "--workers", "-1"], "--workers"),
+    (["--faults", CLASSIC, "--scheduler", "localhost:1"], "--scheduler"),
     (["--faults", "<0;1/0/->", "--bits", "4", "--pairs", "word"], "no march test detects"),
 ])
 def test_cli_errors_exit_2(cli, argv, words):

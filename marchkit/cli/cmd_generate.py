@@ -87,8 +87,15 @@ def run(args) -> int:
     from ..notation import format_file, format_notation
     from .common import console, load_test, memory_from_args, retention_from_args
 
-    if args.workers is not None and args.workers < 0:
-        raise InputError("--workers takes 0 (this process) or a number of local workers")
+    from ..plan.cluster import MAX_LOCAL_WORKERS
+
+    if args.workers is not None and not 0 <= args.workers <= MAX_LOCAL_WORKERS:
+        raise InputError(f"--workers takes 0 (search in this process) up to {MAX_LOCAL_WORKERS} local workers "
+                         f"(got {args.workers})")
+    if args.scheduler is not None and not args.scheduler.startswith(("tcp://", "tls://", "inproc://")):
+        raise InputError(f"--scheduler must be an address such as tcp://127.0.0.1:8786 (got {args.scheduler!r})")
+    if args.scheduler is not None and args.workers:
+        raise InputError("give --workers (a local cluster) or --scheduler (a running one), not both")
     if args.output:
         from pathlib import Path
 
@@ -103,7 +110,7 @@ def run(args) -> int:
     if args.scheduler is not None or args.workers != 0:
         from ..plan.cluster import open_client
 
-        def executor():
+        def executor():        # opened only when the exact search has a bound worth shipping
             return open_client(args.workers, args.scheduler)
 
     def work():
