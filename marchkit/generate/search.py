@@ -252,7 +252,7 @@ def greedy(prob: Problem):
 # IDA*
 
 
-def _dfs_task(prob: Problem, roots, L, deadline, node_cap=None, guide=False):
+def _dfs_task(prob: Problem, roots, L, deadline, node_cap=None, guide=False, tick=None):
     """Search the subtrees below the given first elements for a test of length ≤ L.
 
     Returns (status, path or None, nodes): status 'found' | 'exhausted' | 'timeout'."""
@@ -267,8 +267,11 @@ def _dfs_task(prob: Problem, roots, L, deadline, node_cap=None, guide=False):
     def rec(f, gids, g, path):
         nonlocal nodes, found
         nodes += 1
-        if nodes & 1023 == 0 and deadline is not None and time.time() > deadline:
-            raise _Stop
+        if nodes & 1023 == 0:
+            if deadline is not None and time.time() > deadline:
+                raise _Stop
+            if tick is not None and nodes & 8191 == 0:
+                tick(nodes)
         if node_cap is not None and nodes > node_cap:
             raise _Stop
         ch = prob.children(f, gids, L - g, guide=guide)
@@ -393,7 +396,10 @@ def search(prob: Problem, max_length=None, time_limit=None, executor=None, chunk
             remote_levels += bool(remote)
             if executor is None:
                 for part in parts:
-                    status, path, k = _dfs_task(prob, part, L, deadline)
+                    base = nodes
+                    status, path, k = _dfs_task(prob, part, L, deadline, tick=lambda n: progress and progress(
+                        {"phase": "exact search", "lower_bound": lb, "best": best_len, "nodes": base + n,
+                         "elapsed": time.time() - t0}))
                     nodes += k
                     report()
                     if status == "found":
