@@ -252,13 +252,15 @@ def greedy(prob: Problem):
 # IDA*
 
 
-def _dfs_task(prob: Problem, roots, L, deadline, node_cap=None, guide=False, tick=None):
+def _dfs_task(prob: Problem, roots, L, deadline, node_cap=None, guide=False, tick=None, tt=None):
     """Search the subtrees below the given first elements for a test of length ≤ L.
 
     Returns (status, path or None, nodes): status 'found' | 'exhausted' | 'timeout'."""
     es = prob.es
     nodes = 0
-    tt: dict = {}
+    # nodes already searched at this bound without success; a serial run shares it between
+    # chunks (an earlier chunk failed, so skipping its dead ends finds the same first solution)
+    tt = {} if tt is None else tt
     found = None
 
     class _Stop(Exception):
@@ -395,11 +397,12 @@ def search(prob: Problem, max_length=None, time_limit=None, executor=None, chunk
             executor = client if remote else None
             remote_levels += bool(remote)
             if executor is None:
+                shared_tt: dict = {}
                 for part in parts:
                     base = nodes
                     status, path, k = _dfs_task(prob, part, L, deadline, tick=lambda n: progress and progress(
                         {"phase": "exact search", "lower_bound": lb, "best": best_len, "nodes": base + n,
-                         "elapsed": time.time() - t0}))
+                         "elapsed": time.time() - t0}), tt=shared_tt)
                     nodes += k
                     report()
                     if status == "found":
