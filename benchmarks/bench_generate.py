@@ -41,6 +41,7 @@ def main():
     ap.add_argument("--quick", action="store_true", help="short time limits")
     ap.add_argument("--static-time", type=float, default=120.0)
     ap.add_argument("--skip-dask", action="store_true")
+    ap.add_argument("--only-dask", action="store_true")
     a = ap.parse_args()
     from marchkit.grade import grade
     from marchkit.model import make_memory
@@ -48,6 +49,8 @@ def main():
 
     lim = 20.0 if a.quick else None
     mem = make_memory(64)
+    if a.only_dask:
+        return dask_part()
     print("== classic set (SAF, TF, AF, CFin, CFid, CFst), 64 × 1, serial; target 10n proven ≤ 30 s")
     run("classic", "SAF,TF,AF,CFin,CFid,CFst", mem)
 
@@ -71,18 +74,26 @@ def main():
     wmem = make_memory(32, bits=8, backgrounds="word")
     run("static, 8-bit words", "static", wmem, "word,neighbours", time_limit=lim or 60.0)
 
-    if a.skip_dask:
-        return
+    if not a.skip_dask:
+        dask_part()
+
+
+def dask_part():
+    from marchkit.generate import generate
+    from marchkit.model import make_memory
+    from marchkit.notation import format_notation
     from marchkit.plan.cluster import open_client
 
     sel = "SAF,TF,CFin,CFid,CFst,WDF,DRDF"
     print(f"\n== Dask: exact search for {sel} (proof at 14n), 16 × 1, every bound on the cluster")
     smem = make_memory(16)
     times, tests = {}, {}
+    t = time.perf_counter()
+    g = generate(sel, smem, local_nodes=0)
+    print(f"   serial     {g.length}n  proven {g.proven_minimal}  {time.perf_counter() - t:7.2f} s  "
+          f"{format_notation(g.test)}  (one transposition table for all chunks)")
     for n in (1, 2):
         with open_client(workers=n) as client:
-            from marchkit.generate import generate
-
             t = time.perf_counter()
             g = generate(sel, smem, executor=client, local_nodes=0)
             times[n] = time.perf_counter() - t
