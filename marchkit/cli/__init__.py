@@ -9,7 +9,7 @@ from __future__ import annotations
 import argparse
 import sys
 
-COMMANDS = ("library", "show", "check", "faults", "grade", "compare", "export", "bist", "diagnose", "repair", "plan", "demo")
+COMMANDS = ("library", "show", "check", "faults", "grade", "compare", "generate", "export", "bist", "diagnose", "repair", "plan", "demo")
 
 
 class Parser(argparse.ArgumentParser):
