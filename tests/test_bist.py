@@ -332,7 +332,7 @@ def test_retention_faults_at_every_boundary(tmp_path):
 
     from marchkit.engine.reference import reference_verdicts
     from marchkit.faults.catalogue import Instance
-    from marchkit.faults.primitives import drf_kinds
+    from marchkit.faults import drf_kinds
 
     need_tool("iverilog")
     test = resolve_test("{⇓(w0); Del(100ms); ⇑(r0,w1); Del(100ms); ⇓(r1,w0,r0)}")
@@ -351,7 +351,7 @@ def test_stuck_at_plusargs(tmp_path):
     detection cycle."""
     from marchkit.engine.reference import reference_verdicts
     from marchkit.faults.catalogue import Instance
-    from marchkit.faults.primitives import SAF
+    from marchkit.faults import SAF
 
     need_tool("iverilog")
     mem = make_memory(16, 4, backgrounds="solid,checkerboard", mux=2)
