@@ -451,13 +451,14 @@ PAIR_MEMORIES = [
 
 
 def _to_raw_keys(prep, counts):
-    """The engine numbers the background patterns present; map its counts[s, ka, kv] to
-    the patterns' bits packed as Σ bit_r << r, as _explicit_counts writes them."""
+    """The engine numbers the (background pattern, position) combinations present; map its
+    counts[s, ka, kv] to the patterns' bits packed as Σ bit_r << r, as _explicit_counts
+    writes them (summing over positions)."""
     raw = (prep.key_bits.astype(np.int64) << np.arange(prep.R)).sum(axis=1)
     out = np.zeros((4, 1 << prep.R, 1 << prep.R), dtype=np.int64)
     for ka in range(prep.K):
         for kv in range(prep.K):
-            out[:, raw[ka], raw[kv]] = counts[:, ka, kv]
+            out[:, raw[ka], raw[kv]] += counts[:, ka, kv]
     return out
 
 

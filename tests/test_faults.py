@@ -228,9 +228,9 @@ def test_select_sets():
     assert _texts("retention") == ["DRF0(τ=1ms)", "DRF1(τ=1ms)"]
     assert DEFAULT_RETENTION == (Fraction(1, 1000),)
     everything = select_faults("all")
-    # + the 30 single-cell dynamic primitives (Al-Ars 2005, counted in Di Carlo & Prinetto 2010;
-    # fact sheet)
-    assert len(everything.kinds) == 48 + 2 + 1 + 4 + 2 + 4 + 2 + 30
+    # + the 30 single-cell dynamic primitives (Al-Ars 2005, counted in Di Carlo & Prinetto 2010)
+    # + the 96 two-cell ones (192 with both orientations; Al-Ars & van de Goor, from memory)
+    assert len(everything.kinds) == 48 + 2 + 1 + 4 + 2 + 4 + 2 + 30 + 96
     assert len(set(_texts("all"))) == len(everything.kinds)
     assert [k.text for k in all_kinds()] == _texts("all")
 
@@ -465,4 +465,4 @@ def test_dynamic_class_names_do_not_shadow_static_ones():
     assert select_faults("dRDF").classes == ("dRDF",)
     assert select_faults("DRDF").classes == select_faults("drdf").classes == ("DRDF",)
     assert select_faults("ddrdf").classes == ("dDRDF",)
-    assert len(select_faults("dynamic").kinds) == 30
+    assert len(select_faults("dynamic").kinds) == 30 + 96

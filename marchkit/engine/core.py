@@ -16,9 +16,16 @@ Semantics (the standard ones; see DEVELOPERS.md):
 * AF: see :mod:`marchkit.faults.primitives`; a read of several cells returns their AND; a read
   of an address that selects no cell returns a fixed value, the same in every bit, unknown
   which (so detection must hold for both).
-* Dynamic primitives ``<x O1 O2/F/R>``: O1 and O2 are applied back to back to the cell —
-  adjacent operations of one visit of its address in a march element — with the cell holding x
-  before O1; O2 then leaves F (and a read O2 returns R).
+* Dynamic primitives ``<x O1 O2/F/R>``, ``<a; x O1 O2/F/R>``, ``<x O1 O2; y/F/->``: O1 and
+  O2 are applied back to back to one cell (the victim, or for dCFds the aggressor) — O1 is
+  the operation just before O2 in the whole run, on the same word, with no pause between:
+  adjacent operations of one visit, or the last operation of an element and the first of
+  the next when both address the same word (⇑ then ⇓ meet at the last address, ⇓ then ⇑ at
+  the first), also across background runs.  The cell holds x before O1 and holds the
+  fault-free value after O1 (the value O2's notation names) before O2: a cell already upset
+  by another fault does not see the sequence the primitive describes.  Other conditions
+  (aggressor state a, victim state y) are judged just before O2.  O2 then leaves F in the
+  victim (and a victim read O2 returns R).
 * DRF: when a cell holding the lost value is accessed (read or write of its word) at least τ
   after its last access (or the start), it has flipped before the operation acts.
 """
@@ -122,9 +129,11 @@ class Run:
         vi = len(self.cells) - 1
         vw, vb = self.cells[vi]
         pre_v = self.vals[vw][vb]
+        aw = ab = pre_a = None
         if vi == 1:
             aw, ab = self.cells[0]
             pre_a = self.vals[aw][ab]
+        pre = {c: self.vals[c[0]][c[1]] for c in self.cells}
         out = None
         if kind == "r":
             out = list(self.vals[w])
@@ -133,15 +142,26 @@ class Run:
         for rule in self.kind.rules:
             ca, cv = rule.agg, rule.vic
             if rule.then is not None:
-                # dynamic: the previous operation of this visit was the first one, on the
-                # cell holding cv.pre, and this operation is the second one
+                # dynamic: this operation is the second one; the operation just before it in
+                # time (``prev``: the previous operation of the whole run, nothing between)
+                # was the first one, on the same word, the cell holding its x before it
                 t = rule.then
-                if (w != vw or prev is None or prev[0] != cv.op or prev[2] != cv.pre
-                        or (cv.op == "w" and prev[1] != cv.val)
-                        or kind != t.op or pre_v != t.pre or (kind == "w" and data[vb] != t.val)):
+                if rule.then_on_agg:            # dCFds: both operations on the aggressor
+                    cw, cb, first, pre_c = aw, ab, ca, pre_a
+                else:
+                    cw, cb, first, pre_c = vw, vb, cv, pre_v
+                if (w != cw or prev is None or prev[0] != cw or prev[1] != first.op
+                        or prev[3].get((cw, cb)) != first.pre
+                        or (first.op == "w" and prev[2][cb] != first.val)
+                        or kind != t.op or pre_c != t.pre or (kind == "w" and data[cb] != t.val)):
+                    continue
+                if rule.then_on_agg:
+                    if pre_v != cv.pre:
+                        continue
+                elif ca is not None and pre_a != ca.pre:
                     continue
                 post_v = rule.f
-                if kind == "r":
+                if kind == "r" and not rule.then_on_agg:
                     out[vb] = rule.r
                 continue
             if ca is None:
@@ -166,8 +186,9 @@ class Run:
                 post_v = rule.f
                 if kind == "r":
                     out[vb] = rule.r
-        if w == vw:   # what a dynamic primitive's second operation looks back at
-            self.prev = (kind, data[vb] if kind == "w" else None, pre_v)
+        # what a dynamic primitive's second operation looks back at: this operation's word,
+        # kind, data and the values the fault's cells held before it
+        self.prev = (w, kind, data, pre)
         if kind == "w":
             self.vals[w] = list(data)
         if post_v is not None:
@@ -223,13 +244,13 @@ class Run:
         seq = 0
         for si, seg in enumerate(ctx.sched.segments):
             if seg.element is None:
+                self.prev = None          # a pause: nothing is back to back across it
                 continue
             up = seg.order == "up" or (seg.order == "any" and self.any_up[ctx.any_index[seg.element]])
             words = ctx.words_up if up else ctx.words_down
             bg = ctx.bg[seg.run]
             n1 = ctx.n - 1
             for w in words:
-                self.prev = None          # a new visit: nothing done to this word just before
                 pos = ctx.rank[w] if up else n1 - ctx.rank[w]
                 base = seg.start + pos * seg.per_address
                 bgw = bg[w]

@@ -53,16 +53,26 @@ class Prepared:
         self.scenarios = list(itertools.product((True, False), repeat=len(self.any_elems)))
         # key of each cell: its background bit in every run
         w = np.arange(self.R, dtype=np.int64)
-        # key of each cell: the index of its background bits (one per run) among the distinct
-        # bit patterns present; key_bits[k] gives them back
+        # key of each cell: the index of its background bits (one per run) and of its
+        # position (1 first word of the ⇑ order, 2 last word, 0 any other) among the distinct
+        # combinations present; key_bits[k] / key_pos[k] give them back.  The position matters
+        # only to dynamic faults: the last operation of an element and the first of the next
+        # are back to back on the first or last word.
         bits = self.bg.reshape(self.R, -1).T                       # (n*B, R)
-        if self.R <= 62:
-            raw = (bits.astype(np.int64) << w[None, :]).sum(axis=1)
+        pos = np.zeros(self.n, dtype=np.int64)
+        pos[self.order[0]] = 1
+        pos[self.order[-1]] = 2
+        pos = np.repeat(pos, self.B)
+        if self.R <= 60:
+            raw = (bits.astype(np.int64) << w[None, :]).sum(axis=1) | (pos << self.R)
             uniq, inv = np.unique(raw, return_inverse=True)
             self.key_bits = ((uniq[:, None] >> w[None, :]) & 1).astype(np.int8)
+            self.key_pos = (uniq >> self.R).astype(np.int8)
         else:
-            uniq_rows, inv = np.unique(bits, axis=0, return_inverse=True)
-            self.key_bits = uniq_rows.astype(np.int8)
+            uniq_rows, inv = np.unique(np.concatenate([bits, pos[:, None]], axis=1), axis=0,
+                                       return_inverse=True)
+            self.key_bits = uniq_rows[:, :-1].astype(np.int8)
+            self.key_pos = uniq_rows[:, -1].astype(np.int8)
         self.cell_key = inv.ravel().astype(np.int64)               # (n*B,)
         self.K = self.key_bits.shape[0]
         self._word_key = None
@@ -103,12 +113,13 @@ def _rule_params(kinds):
     S = max(len(k.rules) for k in kinds)
     M = len(kinds)
     P = {name: np.zeros((S, M), dtype=np.int8) for name in
-         ("rt", "a_pre", "a_op", "a_val", "v_pre", "v_op", "v_val", "f", "r", "t_pre", "t_op", "t_val")}
+         ("rt", "a_pre", "a_op", "a_val", "v_pre", "v_op", "v_val", "f", "r", "t_pre", "t_op", "t_val",
+          "has_a")}
     for j, k in enumerate(kinds):
         for s, rule in enumerate(k.rules):
             a, v = rule.agg, rule.vic
             if rule.then is not None:
-                rt = 6
+                rt = 7 if rule.then_on_agg else 6
                 P["t_pre"][s, j] = rule.then.pre
                 P["t_op"][s, j] = _OPCODE[rule.then.op]
                 P["t_val"][s, j] = rule.then.val
@@ -122,6 +133,7 @@ def _rule_params(kinds):
                 rt = 5
             P["rt"][s, j] = rt
             if a is not None:
+                P["has_a"][s, j] = 1
                 P["a_pre"][s, j] = a.pre
                 P["a_op"][s, j] = _OPCODE[a.op]
                 P["a_val"][s, j] = a.val if a.val is not None else 0
@@ -154,21 +166,43 @@ def _events(prep, structure, any_up):
     return out
 
 
-def rules_batch(prep, structure, kind_idx, params, bga, bgv):
+def _joins(prep, any_up):
+    """For each segment index: the word position (1 first, 2 last of the ⇑ order) whose last
+    operation of the element just before and first operation of this element are back to
+    back (the two elements touch with no pause between and meet on that word), or 0."""
+    segs = prep.sched.segments
+    out = [0] * len(segs)
+    for si in range(1, len(segs)):
+        if segs[si].element is None or segs[si - 1].element is None:
+            continue
+        end = 2 if prep.seg_up(si - 1, any_up) else 1
+        start = 1 if prep.seg_up(si, any_up) else 2
+        if end == start:
+            out[si] = end
+    return out
+
+
+def rules_batch(prep, structure, kind_idx, params, bga, bgv, posa=None, posv=None):
     """Simulate M keys at once.
 
     ``kind_idx`` (M,) indexes the kinds in ``params``; ``bga``/``bgv`` (M, R) are the
-    background bits of aggressor and victim.  Returns (detected (M,), canonical first event
-    (M,) as an index into the canonical event list, that list).
+    background bits of aggressor and victim, ``posa``/``posv`` (M,) the positions of their
+    words (0 inside, 1 first, 2 last word of the ⇑ order).  Returns (detected (M,),
+    canonical first event (M,) as an index into the canonical event list, that list).
     """
     M = kind_idx.size
+    if posa is None:
+        posa = np.zeros(M, dtype=np.int8)
+    if posv is None:
+        posv = np.zeros(M, dtype=np.int8)
+    posa, posv = posa[:, None], posv[:, None]
     two = structure != SINGLE
     I = 4 if two else 2
     init_a = np.array([0, 0, 1, 1] if two else [0, 0], dtype=np.int8)
     init_v = np.array([0, 1, 0, 1] if two else [0, 1], dtype=np.int8)
     S = params["rt"].shape[0]
     p = {name: arr[:, kind_idx][:, :, None] for name, arr in params.items()}  # (S, M, 1)
-    dynamic = bool((p["rt"] == 6).any())
+    dynamic = bool((p["rt"] >= 6).any())
     detected = np.ones(M, dtype=bool)
     canon_first = np.full(M, -1, dtype=np.int64)
     canon_events = None
@@ -181,13 +215,27 @@ def rules_batch(prep, structure, kind_idx, params, bga, bgv):
             vv = np.where(m1 | m5, p["f"][s], vv)
         return vv
 
+    def previous(si, k, pos):
+        """The operation just before (si, k) on a word at position ``pos``: (kind, value,
+        run, mask of the keys for which it is back to back) or None."""
+        seg = prep.sched.segments[si]
+        if k > 0:
+            return seg.op_kinds[k - 1], seg.op_values[k - 1], seg.run, None
+        jp = joins[si]
+        if not jp:
+            return None
+        ps = prep.sched.segments[si - 1]
+        return ps.op_kinds[-1], ps.op_values[-1], ps.run, pos == jp
+
     for any_up in prep.scenarios:
         events = _events(prep, structure, any_up)
+        joins = _joins(prep, any_up)
         va = np.broadcast_to(init_a, (M, I)).copy()
         vv = np.broadcast_to(init_v, (M, I)).copy()
         vv = apply_states(va, vv)
         first = np.full((M, I), -1, dtype=np.int64)
-        last_pre_v = vv    # the victim's value before its previous operation in this visit
+        last_pre_v = vv    # the victim's value before its previous operation
+        last_pre_a = va    # the aggressor's value before its previous operation
         for ev, (si, role, k) in enumerate(events):
             seg = prep.sched.segments[si]
             kind = seg.op_kinds[k]
@@ -200,6 +248,8 @@ def rules_batch(prep, structure, kind_idx, params, bga, bgv):
             fired = np.zeros((M, I), dtype=bool)
             fval = np.zeros((M, I), dtype=np.int8)
             outv = pre_v if (kind == "r" and tv) else None
+            pv = previous(si, k, posv) if (dynamic and tv) else None
+            pa = previous(si, k, posa) if (dynamic and ta and two) else None
             for s in range(S):
                 rt = p["rt"][s]
                 fire = None
@@ -208,16 +258,19 @@ def rules_batch(prep, structure, kind_idx, params, bga, bgv):
                     if kind == "w":
                         opm = opm & (dv == p["v_val"][s])
                     mv = opm & ((rt == 2) | ((rt == 4) & (pre_a == p["a_pre"][s])))
-                    if dynamic and k > 0:
-                        # the previous operation of this visit (k-1) on the victim is the first
-                        pk = seg.op_kinds[k - 1]
-                        dprev = (bgv[:, seg.run] ^ seg.op_values[k - 1])[:, None]
+                    if pv is not None:
+                        # the operation before, back to back on the victim, was the first one
+                        pk, pval, prun, ok = pv
+                        dprev = (bgv[:, prun] ^ pval)[:, None]
                         dm = ((rt == 6) & (p["v_op"][s] == _OPCODE[pk]) & (last_pre_v == p["v_pre"][s])
-                              & (p["t_op"][s] == code) & (pre_v == p["t_pre"][s]))
+                              & (p["t_op"][s] == code) & (pre_v == p["t_pre"][s])
+                              & ((p["has_a"][s] == 0) | (pre_a == p["a_pre"][s])))
                         if pk == "w":
                             dm = dm & (dprev == p["v_val"][s])
                         if kind == "w":
                             dm = dm & (dv == p["t_val"][s])
+                        if ok is not None:
+                            dm = dm & ok
                         mv = mv | dm
                     fire = mv
                     if outv is not None:
@@ -226,6 +279,19 @@ def rules_batch(prep, structure, kind_idx, params, bga, bgv):
                     opm = (rt == 3) & (p["a_op"][s] == code) & (pre_a == p["a_pre"][s]) & (pre_v == p["v_pre"][s])
                     if kind == "w":
                         opm = opm & (da == p["a_val"][s])
+                    if pa is not None:
+                        # dCFds: the aggressor's two operations back to back
+                        pk, pval, prun, ok = pa
+                        daprev = (bga[:, prun] ^ pval)[:, None]
+                        dm = ((rt == 7) & (p["a_op"][s] == _OPCODE[pk]) & (last_pre_a == p["a_pre"][s])
+                              & (p["t_op"][s] == code) & (pre_a == p["t_pre"][s]) & (pre_v == p["v_pre"][s]))
+                        if pk == "w":
+                            dm = dm & (daprev == p["a_val"][s])
+                        if kind == "w":
+                            dm = dm & (da == p["t_val"][s])
+                        if ok is not None:
+                            dm = dm & ok
+                        opm = opm | dm
                     fire = opm if fire is None else (fire | opm)
                 if fire is not None:
                     fired |= fire
@@ -237,6 +303,8 @@ def rules_batch(prep, structure, kind_idx, params, bga, bgv):
                     vv = np.broadcast_to(dv, (M, I)).astype(np.int8)
             if tv:
                 last_pre_v = pre_v
+            if ta:
+                last_pre_a = pre_a
             vv = np.where(fired, fval, vv).astype(np.int8)
             vv = apply_states(va, vv)
             if outv is not None and (si, k) in prep.determined:
@@ -365,7 +433,8 @@ class Engine:
             det = np.zeros((len(kinds), K, K), dtype=bool)
             evt = np.full((len(kinds), K, K), -1, dtype=np.int64)
             if kk.size:
-                d, e, events = rules_batch(prep, structure, kk, params, prep.key_bits[ka], prep.key_bits[kv])
+                d, e, events = rules_batch(prep, structure, kk, params, prep.key_bits[ka], prep.key_bits[kv],
+                                           prep.key_pos[ka], prep.key_pos[kv])
                 det[kk, ka, kv] = d
                 evt[kk, ka, kv] = e
             else:

@@ -21,7 +21,8 @@ from typing import Iterator
 import numpy as np
 
 from ..errors import FaultSpecError
-from .primitives import (AF, CFID, CFIN, CFST, CLASSIC_CLASSES, DYNAMIC, DYNAMIC_CLASSES, SAF,
+from .primitives import (AF, CFID, CFIN, CFST, CLASSIC_CLASSES, DYNAMIC, DYNAMIC2, DYNAMIC2_CLASSES,
+                         DYNAMIC_CLASSES, SAF,
                          SINGLE_CLASSES, SOF, STATIC, STATIC_CLASSES, TF, FaultKind, drf_kinds,
                          primitive)
 
@@ -42,7 +43,7 @@ def format_seconds(s: Fraction) -> str:
 
 def _class_kinds(name: str, retention) -> tuple[FaultKind, ...] | None:
     low = name.lower()
-    every = STATIC_CLASSES + CLASSIC_CLASSES + ("DRF",) + DYNAMIC_CLASSES
+    every = STATIC_CLASSES + CLASSIC_CLASSES + ("DRF",) + DYNAMIC_CLASSES + DYNAMIC2_CLASSES
     if name in every:              # exact spelling first: dRDF (dynamic) is not DRDF
         c = name
     else:                          # then any case, the static and classic names winning
@@ -56,12 +57,14 @@ def _class_kinds(name: str, retention) -> tuple[FaultKind, ...] | None:
         return tuple(k for k in STATIC if k.cls == c)
     if c in DYNAMIC_CLASSES:
         return tuple(k for k in DYNAMIC if k.cls == c)
+    if c in DYNAMIC2_CLASSES:
+        return tuple(k for k in DYNAMIC2 if k.cls == c)
     return {"SAF": SAF, "TF": TF, "SOF": SOF, "AF": AF, "CFin": CFIN, "CFid": CFID,
             "CFst": CFST, "DRF": drf_kinds(retention)}[c]
 
 
 def all_kinds(retention=DEFAULT_RETENTION) -> tuple[FaultKind, ...]:
-    return STATIC + SAF + SOF + AF + CFIN + CFID + drf_kinds(retention) + DYNAMIC
+    return STATIC + SAF + SOF + AF + CFIN + CFID + drf_kinds(retention) + DYNAMIC + DYNAMIC2
 
 
 @dataclass(frozen=True)
@@ -90,7 +93,7 @@ def select_faults(spec: str = "static", retention=DEFAULT_RETENTION) -> FaultSel
         elif low == "retention":
             got = drf_kinds(retention)
         elif low == "dynamic":
-            got = DYNAMIC
+            got = DYNAMIC + DYNAMIC2
         elif low == "all":
             got = all_kinds(retention)
         elif part.startswith("<"):
@@ -104,7 +107,8 @@ def select_faults(spec: str = "static", retention=DEFAULT_RETENTION) -> FaultSel
                 else:
                     raise FaultSpecError(
                         f"unknown fault selection {part!r}; use static, classic, retention, dynamic, all, "
-                        "a class (" + ", ".join(STATIC_CLASSES + ("SAF", "SOF", "AF", "CFin", "CFid", "DRF") + DYNAMIC_CLASSES) +
+                        "a class (" + ", ".join(STATIC_CLASSES + ("SAF", "SOF", "AF", "CFin", "CFid", "DRF")
+                                                + DYNAMIC_CLASSES + DYNAMIC2_CLASSES) +
                         "), a kind such as SA0 or AF:alias, or a primitive such as <0w1/0/->"
                     )
         for k in got:

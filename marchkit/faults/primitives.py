@@ -49,11 +49,22 @@ class Rule:
     then: Cond | None = None     # dynamic primitive: the second of two back-to-back operations
 
     @property
+    def then_on_agg(self) -> bool:
+        """A two-cell dynamic primitive whose two operations go to the aggressor (dCFds)."""
+        return self.then is not None and self.agg is not None and self.agg.op is not None
+
+    @property
     def text(self) -> str:
-        s = self.vic.text if self.agg is None else f"{self.agg.text};{self.vic.text}"
+        second = ""
         if self.then is not None:
             t = self.then
-            s += f"w{t.val}" if t.op == "w" else f"r{t.pre}"
+            second = f"w{t.val}" if t.op == "w" else f"r{t.pre}"
+        if self.agg is None:
+            s = self.vic.text + second
+        elif self.then_on_agg:
+            s = f"{self.agg.text}{second};{self.vic.text}"
+        else:
+            s = f"{self.agg.text};{self.vic.text}{second}"
         return f"<{s}/{self.f}/{'-' if self.r is None else self.r}>"
 
 
@@ -62,6 +73,21 @@ _FP_RE = re.compile(rf"^<(?:{_COND};)?{_COND}/([01])/([01-])>$")
 
 
 _DYN_RE = re.compile(r"^<([01])([wr])([01])([wr])([01])/([01])/([01-])>$")
+# two-cell dynamic: <x O1 O2; y/F/-> (both operations on the aggressor, dCFds) or
+# <x; y O1 O2/F/R> (aggressor state, both operations on the victim)
+_DYN_A_RE = re.compile(r"^<([01])([wr])([01])([wr])([01]);([01])/([01])/(-)>$")
+_DYN_V_RE = re.compile(r"^<([01]);([01])([wr])([01])([wr])([01])/([01])/([01-])>$")
+
+
+def _two_ops(text, x, o1, v1, o2, v2):
+    """The two back-to-back operations on a cell holding ``x``: (first Cond, second Cond)."""
+    x, v1, v2 = int(x), int(v1), int(v2)
+    if o1 == "r" and v1 != x:
+        raise FaultSpecError(f"{text!r}: the first read of a cell holding {x} is r{x}")
+    s = v1 if o1 == "w" else x
+    if o2 == "r" and v2 != s:
+        raise FaultSpecError(f"{text!r}: after {o1}{v1} the cell holds {s}, so the read is r{s}")
+    return Cond(x, o1, v1), Cond(s, o2, v2)
 
 
 def _parse_dynamic(text: str, m) -> Rule:
@@ -88,6 +114,24 @@ def parse_rule(text: str) -> Rule:
     dm = _DYN_RE.match(s)
     if dm:
         return _parse_dynamic(text, dm)
+    dm = _DYN_A_RE.match(s)
+    if dm:
+        x, o1, v1, o2, v2, y, f, _ = dm.groups()
+        first, second = _two_ops(text, x, o1, v1, o2, v2)
+        if int(f) == int(y):
+            raise FaultSpecError(f"{text!r}: F must differ from the victim's state {y}; that is no fault")
+        return Rule(Cond(int(y)), int(f), None, first, second)
+    dm = _DYN_V_RE.match(s)
+    if dm:
+        a, x, o1, v1, o2, v2, f, r = dm.groups()
+        first, second = _two_ops(text, x, o1, v1, o2, v2)
+        rr = None if r == "-" else int(r)
+        if (o2 == "r") != (rr is not None):
+            raise FaultSpecError(f"{text!r}: R is a value exactly when the second operation is a read, '-' otherwise")
+        good_f = second.val if o2 == "w" else second.pre
+        if int(f) == good_f and (rr is None or rr == second.pre):
+            raise FaultSpecError(f"{text!r}: F and R are what a fault-free cell gives; that is no fault")
+        return Rule(first, int(f), rr, Cond(int(a)), second)
     m = _FP_RE.match(s)
     if not m:
         raise FaultSpecError(f"{text!r} is not a fault primitive such as <0w1/0/-> or <1;0r0/1/1>")
@@ -141,6 +185,11 @@ class FaultKind:
         """True for the 48 static primitives (one rule, reported per primitive)."""
         return self.family == "rules" and len(self.rules) == 1 and self.cls in STATIC_CLASSES
 
+    @property
+    def is_dynamic(self) -> bool:
+        """True when some rule needs two back-to-back operations."""
+        return any(r.then is not None for r in self.rules)
+
 
 def _r(text):
     return parse_rule(text)
@@ -149,12 +198,15 @@ def _r(text):
 def _classify(rule: Rule) -> str:
     v, a = rule.vic, rule.agg
     if rule.then is not None:
+        if rule.then_on_agg:
+            return "dCFds"
         t = rule.then
+        pre = "dCF" if a is not None else "d"
         if t.op == "w":
-            return "dTF" if t.val != t.pre else "dWDF"
+            return pre + ("TF" if a is None else "tr") if t.val != t.pre else pre + ("WDF" if a is None else "wd")
         if rule.f != t.pre:
-            return "dRDF" if rule.r != t.pre else "dDRDF"
-        return "dIRF"
+            return pre + ("RDF" if a is None else "rd") if rule.r != t.pre else pre + ("DRDF" if a is None else "drd")
+        return pre + ("IRF" if a is None else "ir")
     if a is None:
         if v.op is None:
             return "SF"
@@ -232,7 +284,39 @@ def _dynamic_texts() -> list[str]:
 
 
 DYNAMIC = tuple(_primitive_kind(t) for t in _dynamic_texts())
-_BY_TEXT = {k.text: k for k in STATIC + DYNAMIC}
+
+DYNAMIC2_CLASSES = ("dCFds", "dCFtr", "dCFwd", "dCFrd", "dCFdrd", "dCFir")
+
+
+def _dynamic2_texts() -> list[str]:
+    """The two-cell two-operation primitives, derived: both operations go to one cell.
+
+    * on the aggressor (dCFds): a state x, two operations back to back (O1, O2 each w0, w1 or
+      a read: 2·3·3 = 18 sequences) with the victim in state y (2), which flips: 36;
+    * on the victim, the aggressor in state a (2): each of the 30 single-cell dynamic
+      primitives: 60 (dCFtr, dCFwd: 24 write-ended; dCFrd, dCFdrd, dCFir: 36 read-ended).
+
+    96 primitives; each occurs with the aggressor before and after the victim, 192 in all —
+    the published count (Al-Ars & van de Goor; Hamdioui, Al-Ars, van de Goor, VTS 2002, from
+    memory).  marchkit instances every two-cell kind on ordered (aggressor, victim) pairs,
+    so the orientation is in the instances and the kind list holds the 96."""
+    out = []
+    for x in (0, 1):
+        for o1 in ("w0", "w1", "r"):
+            first = o1 if o1[0] == "w" else f"r{x}"
+            s1 = int(o1[1]) if o1[0] == "w" else x
+            for o2 in ("w0", "w1", "r"):
+                second = o2 if o2[0] == "w" else f"r{s1}"
+                for y in (0, 1):
+                    out.append(f"<{x}{first}{second};{y}/{1 - y}/->")
+    for a in (0, 1):
+        for t in _dynamic_texts():
+            out.append(f"<{a};{t[1:]}")
+    return out
+
+
+DYNAMIC2 = tuple(_primitive_kind(t) for t in _dynamic2_texts())
+_BY_TEXT = {k.text: k for k in STATIC + DYNAMIC + DYNAMIC2}
 
 
 def primitive(text: str) -> FaultKind:
