@@ -26,6 +26,11 @@ Semantics (the standard ones; see DEVELOPERS.md):
   by another fault does not see the sequence the primitive describes.  Other conditions
   (aggressor state a, victim state y) are judged just before O2.  O2 then leaves F in the
   victim (and a victim read O2 returns R).
+* Group faults (LF3, NPSF; :mod:`marchkit.faults.group`): each ``GRule`` fires when its
+  operation is applied to its role's cell while every role it names holds the required value
+  (judged before the operation); the victim then holds ``f`` (overriding a simultaneous
+  write) and a victim read returns ``r``.  State rules act at the start and after every
+  operation.  Roles cut off by the array's edge (NPSF) impose nothing.
 * DRF: when a cell holding the lost value is accessed (read or write of its word) at least τ
   after its last access (or the start), it has flipped before the operation acts.
 """
@@ -104,6 +109,13 @@ class Run:
                 self.dec[b] = [a, b]
         if fam == "sof":
             self.sof = divmod(inst.sites[0], bits)
+        if fam == "group":
+            # one cell per role, None where an NPSF neighbourhood is cut by the array's edge
+            self.gcells = [divmod(c, bits) if c >= 0 else None for c in inst.sites]
+            for c, v in zip(self.gcells, inits):
+                if c is not None:
+                    self.vals[c[0]][c[1]] = v
+            self.apply_gstates()
         self.prev = None
         if fam == "rules":
             self.apply_states()
@@ -196,11 +208,51 @@ class Run:
         self.apply_states()
         return out
 
+    # -- group rules (LF3, NPSF): conditions on any roles, one operation -----------------
+    def _gholds(self, g, pre) -> bool:
+        return all(need is None or self.gcells[i] is None or pre[i] == need
+                   for i, need in enumerate(g.need))
+
+    def apply_gstates(self):
+        for g in self.kind.grules:
+            if g.op is not None:
+                continue
+            pre = [self.vals[c[0]][c[1]] if c is not None else None for c in self.gcells]
+            if self._gholds(g, pre):
+                vw, vb = self.gcells[g.victim]
+                self.vals[vw][vb] = g.f
+
+    def access_group(self, w, kind, data):
+        cells = self.gcells
+        pre = [self.vals[c[0]][c[1]] if c is not None else None for c in cells]
+        out = list(self.vals[w]) if kind == "r" else None
+        post = []
+        for g in self.kind.grules:
+            if g.op is None:
+                continue
+            role, op, val = g.op
+            c = cells[role]
+            if c is None or c[0] != w or op != kind or (kind == "w" and data[c[1]] != val):
+                continue
+            if not self._gholds(g, pre):
+                continue
+            post.append((cells[g.victim], g.f))
+            if kind == "r" and role == g.victim:
+                out[cells[g.victim][1]] = g.r
+        if kind == "w":
+            self.vals[w] = list(data)
+        for (vw, vb), f in post:
+            self.vals[vw][vb] = f
+        self.apply_gstates()
+        return out
+
     # -- one operation -----------------------------------------------------------------
     def access(self, w, kind, data, t):
         fam = self.kind.family
         if fam == "rules":
             out = self.access_rules(w, kind, data)
+        elif fam == "group":
+            out = self.access_group(w, kind, data)
         elif fam == "af":
             targets = self.dec.get(w, [w])
             if kind == "w":
@@ -293,7 +345,7 @@ class Context:
 def n_init_cells(kind) -> int:
     if kind.family == "af":
         return 1 if kind.af == "none" else 0   # the floating read value
-    return kind.arity if kind.family in ("rules", "drf") else 0
+    return kind.arity if kind.family in ("rules", "drf", "group") else 0
 
 
 def verdict(ctx, inst):

@@ -722,7 +722,7 @@ class Engine:
         fams: dict[str, list] = {}
         for k in selection.kinds:
             fams.setdefault(k.family, []).append(k)
-        steps = [f for f in ("rules", "af", "sof", "drf") if f in fams]
+        steps = [f for f in ("rules", "group", "af", "sof", "drf") if f in fams]
         if workers is None:
             workers = _default_workers(self.prep, len(steps))
         results: dict[str, KindResult] = {}
@@ -760,6 +760,10 @@ class Engine:
         out: dict[str, KindResult] = {}
         if fam == "rules":
             self.grade_rules(kinds, scope, out)
+        elif fam == "group":
+            from .group import grade_group
+
+            grade_group(self, kinds, scope, out, KindResult, Instance)
         elif fam == "af":
             self.grade_af(kinds, scope, out)
         elif fam == "sof":
@@ -812,6 +816,12 @@ class Engine:
             elif fam == "sof":
                 d, ev = self._sof_verdict(inst.kind, inst.sites[0])
                 out[i] = (d, self._detection(ev.seg, ev.op, ev.word) if d else None)
+        grp = [i for i, x in enumerate(instances) if x.kind.family == "group"]
+        if grp:
+            from .group import group_verdicts
+
+            for i, v in zip(grp, group_verdicts(self, [instances[i] for i in grp])):
+                out[i] = v
         drf = [i for i, x in enumerate(instances) if x.kind.family == "drf"]
         cache = {}
         for i in drf:

@@ -21,6 +21,8 @@ from typing import Iterator
 import numpy as np
 
 from ..errors import FaultSpecError
+from .group import LF3, NPSF, NPSF_CLASSES, lf3_count, lf3_triple_chunks, npsf_applies, npsf_count, npsf_neighbourhoods
+from .linked import LF1, LF2AA, LF2AV, LF2VA, LINKED_CLASSES
 from .primitives import (AF, CFID, CFIN, CFST, CLASSIC_CLASSES, DYNAMIC, DYNAMIC2, DYNAMIC2_CLASSES,
                          DYNAMIC_CLASSES, SAF,
                          SINGLE_CLASSES, SOF, STATIC, STATIC_CLASSES, TF, FaultKind, drf_kinds,
@@ -43,7 +45,8 @@ def format_seconds(s: Fraction) -> str:
 
 def _class_kinds(name: str, retention) -> tuple[FaultKind, ...] | None:
     low = name.lower()
-    every = STATIC_CLASSES + CLASSIC_CLASSES + ("DRF",) + DYNAMIC_CLASSES + DYNAMIC2_CLASSES
+    every = (STATIC_CLASSES + CLASSIC_CLASSES + ("DRF",) + DYNAMIC_CLASSES + DYNAMIC2_CLASSES
+             + LINKED_CLASSES + NPSF_CLASSES)
     if name in every:              # exact spelling first: dRDF (dynamic) is not DRDF
         c = name
     else:                          # then any case, the static and classic names winning
@@ -59,12 +62,20 @@ def _class_kinds(name: str, retention) -> tuple[FaultKind, ...] | None:
         return tuple(k for k in DYNAMIC if k.cls == c)
     if c in DYNAMIC2_CLASSES:
         return tuple(k for k in DYNAMIC2 if k.cls == c)
+    if c in LINKED_CLASSES:
+        return {"LF1": LF1, "LF2aa": LF2AA, "LF2av": LF2AV, "LF2va": LF2VA, "LF3": LF3}[c]
+    if c in NPSF_CLASSES:
+        return tuple(k for k in NPSF if k.cls == c)
     return {"SAF": SAF, "TF": TF, "SOF": SOF, "AF": AF, "CFin": CFIN, "CFid": CFID,
             "CFst": CFST, "DRF": drf_kinds(retention)}[c]
 
 
 def all_kinds(retention=DEFAULT_RETENTION) -> tuple[FaultKind, ...]:
-    return STATIC + SAF + SOF + AF + CFIN + CFID + drf_kinds(retention) + DYNAMIC + DYNAMIC2
+    return (STATIC + SAF + SOF + AF + CFIN + CFID + drf_kinds(retention) + DYNAMIC + DYNAMIC2
+            + LINKED + NPSF)
+
+
+LINKED = LF1 + LF2AA + LF2AV + LF2VA + LF3
 
 
 @dataclass(frozen=True)
@@ -94,6 +105,10 @@ def select_faults(spec: str = "static", retention=DEFAULT_RETENTION) -> FaultSel
             got = drf_kinds(retention)
         elif low == "dynamic":
             got = DYNAMIC + DYNAMIC2
+        elif low == "linked":
+            got = LINKED
+        elif low == "npsf":
+            got = NPSF
         elif low == "all":
             got = all_kinds(retention)
         elif part.startswith("<"):
@@ -106,9 +121,10 @@ def select_faults(spec: str = "static", retention=DEFAULT_RETENTION) -> FaultSel
                     got = (named[low],)
                 else:
                     raise FaultSpecError(
-                        f"unknown fault selection {part!r}; use static, classic, retention, dynamic, all, "
+                        f"unknown fault selection {part!r}; use static, classic, retention, dynamic, linked, npsf, all, "
                         "a class (" + ", ".join(STATIC_CLASSES + ("SAF", "SOF", "AF", "CFin", "CFid", "DRF")
-                                                + DYNAMIC_CLASSES + DYNAMIC2_CLASSES) +
+                                                + DYNAMIC_CLASSES + DYNAMIC2_CLASSES + LINKED_CLASSES
+                                                + NPSF_CLASSES) +
                         "), a kind such as SA0 or AF:alias, or a primitive such as <0w1/0/->"
                     )
         for k in got:
@@ -260,6 +276,8 @@ def word_pairs(mem, scope: PairScope) -> tuple[np.ndarray, np.ndarray] | None:
 
 def instance_count(kind: FaultKind, mem, scope: PairScope) -> int:
     """Exact number of instances of ``kind`` on ``mem`` (no enumeration)."""
+    if kind.family == "group":
+        return npsf_count(kind, mem) if kind.cls in NPSF_CLASSES else lf3_count(mem, scope)
     if kind.family == "af":
         if kind.arity == 1:
             return mem.words
@@ -279,6 +297,13 @@ class Instance:
     sites: tuple[int, ...]
 
     def text(self, mem) -> str:
+        if self.kind.family == "group":
+            def gcell(c):
+                w, b = divmod(c, mem.bits)
+                return f"w{w}" if mem.bits == 1 else f"w{w}.b{b}"
+
+            return f"{self.kind.text} " + " ".join(
+                f"{r}={gcell(c)}" for r, c in zip(self.kind.roles, self.sites) if c >= 0)
         if self.kind.family == "af":
             names = "ab"
             return f"{self.kind.text} " + " ".join(f"{names[i]}={s}" for i, s in enumerate(self.sites))
@@ -293,7 +318,19 @@ class Instance:
 
 
 def enumerate_instances(kind: FaultKind, mem, scope: PairScope) -> Iterator[Instance]:
-    """Every instance of ``kind`` on ``mem``, in a fixed order (for audits and small arrays)."""
+    """Every instance of ``kind`` on ``mem``, in a fixed order (for audits and small arrays).
+    Group kinds: NPSF sites are (base, N, S, E, W) with -1 for a neighbour the edge cuts off;
+    LF3 sites are (a1, a2, v)."""
+    if kind.family == "group":
+        if kind.cls in NPSF_CLASSES:
+            for row in npsf_neighbourhoods(mem).tolist():
+                if npsf_applies(kind, [c >= 0 for c in row[1:]]):
+                    yield Instance(kind, tuple(row))
+            return
+        for a1, a2, v in lf3_triple_chunks(mem, scope):
+            for t in zip(a1.tolist(), a2.tolist(), v.tolist()):
+                yield Instance(kind, t)
+        return
     if kind.family == "af" and kind.arity == 1:
         for w in range(mem.words):
             yield Instance(kind, (w,))

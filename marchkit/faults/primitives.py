@@ -163,7 +163,9 @@ def parse_rule(text: str) -> Rule:
 class FaultKind:
     """A fault model at the level of one instance's behaviour.
 
-    ``family``: ``rules`` (a set of primitives acting together), ``sof``, ``af`` or ``drf``.
+    ``family``: ``rules`` (a set of primitives acting together on one or two cells), ``group``
+    (rules on three or more cells by role: LF3, NPSF — see :mod:`marchkit.faults.group`),
+    ``sof``, ``af`` or ``drf``.
     ``arity``: cells (or, for ``af``, words) one instance involves.
     """
 
@@ -176,6 +178,8 @@ class FaultKind:
     drf_value: int | None = None   # the value the cell loses
     tau: Fraction | None = None    # seconds
     description: str = field(default="", compare=False)
+    roles: tuple = ()              # group family: the names of its cells' roles
+    grules: tuple = ()             # group family: its GRules (faults.group)
 
     def __str__(self) -> str:
         return self.text
