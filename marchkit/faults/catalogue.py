@@ -1,7 +1,9 @@
 """Fault selections (``--faults``), pair scopes (``--pairs``) and the instances they give.
 
 Selections: ``static`` (the 48 primitives), ``classic`` (SAF, TF, SOF, AF, CFin, CFid,
-CFst), ``retention`` (DRF), ``dynamic`` (the 30 single-cell two-operation primitives), ``all``, any class name (``SAF``, ``CFds``, ``DRF`` …), one kind
+CFst), ``retention`` (DRF), ``dynamic`` (the 30 single-cell and 96 two-cell two-operation
+primitives), ``linked`` (LF1, LF2aa, LF2av, LF2va, LF3), ``npsf`` (ANPSF, PNPSF, SNPSF),
+``all``, any class name (``SAF``, ``CFds``, ``DRF`` …), one kind
 (``SA0``, ``AF:alias``) or one primitive in ``<S/F/R>`` form — combined as a comma list.
 
 Pair scopes, for the two-cell kinds (cells) and the two-address AF kinds (words):
@@ -21,61 +23,55 @@ from typing import Iterator
 import numpy as np
 
 from ..errors import FaultSpecError
-from .group import LF3, NPSF, NPSF_CLASSES, lf3_count, lf3_triple_chunks, npsf_applies, npsf_count, npsf_neighbourhoods
-from .linked import LF1, LF2AA, LF2AV, LF2VA, LINKED_CLASSES
-from .primitives import (AF, CFID, CFIN, CFST, CLASSIC_CLASSES, DYNAMIC, DYNAMIC2, DYNAMIC2_CLASSES,
-                         DYNAMIC_CLASSES, SAF,
-                         SINGLE_CLASSES, SOF, STATIC, STATIC_CLASSES, TF, FaultKind, drf_kinds,
-                         primitive)
+from ..units import format_seconds  # noqa: F401  (re-exported)
+from .registry import FAMILIES, family_of
 
 DEFAULT_RETENTION = (Fraction(1, 1000),)
 MAX_EXPLICIT_PAIRS = 48_000_000     # directed pairs held as arrays (~3 GB at peak while grading)
+GROUP_WORDS = ("static", "classic", "retention", "dynamic", "linked", "npsf", "all")
 
 
-def format_seconds(s: Fraction) -> str:
-    s = Fraction(s)
-    for unit, scale in (("s", 1), ("ms", 1000), ("us", 10**6), ("ns", 10**9)):
-        v = s * scale
-        if v >= 1 or unit == "ns":
-            if v.denominator == 1:
-                return f"{v.numerator}{unit}"
-            return f"{float(v):.15g}{unit}"
-    return f"{float(s)}s"  # pragma: no cover
+def _group(word: str, retention) -> tuple[FaultKind, ...]:
+    """The kinds of a selection word, every family's contribution in slot order."""
+    parts = []
+    for i, f in enumerate(FAMILIES):
+        for slot, kinds in f.groups(retention).get(word, []):
+            parts.append((slot, i, kinds))
+    out: dict[str, FaultKind] = {}
+    for _, _, kinds in sorted(parts, key=lambda x: (x[0], x[1])):
+        for k in kinds:
+            out.setdefault(k.text, k)
+    return tuple(out.values())
+
+
+def all_classes() -> tuple[str, ...]:
+    """Every class name, family by family in registry order."""
+    out: dict[str, None] = {}
+    for f in FAMILIES:
+        for c in f.classes:
+            out.setdefault(c, None)
+    return tuple(out)
 
 
 def _class_kinds(name: str, retention) -> tuple[FaultKind, ...] | None:
-    low = name.lower()
-    every = (STATIC_CLASSES + CLASSIC_CLASSES + ("DRF",) + DYNAMIC_CLASSES + DYNAMIC2_CLASSES
-             + LINKED_CLASSES + NPSF_CLASSES)
+    every = all_classes()
     if name in every:              # exact spelling first: dRDF (dynamic) is not DRDF
         c = name
-    else:                          # then any case, the static and classic names winning
+    else:                          # then any case, the earlier-registered names winning
         classes: dict[str, str] = {}
         for c in every:
             classes.setdefault(c.lower(), c)
-        if low not in classes:
+        if name.lower() not in classes:
             return None
-        c = classes[low]
-    if c in STATIC_CLASSES:
-        return tuple(k for k in STATIC if k.cls == c)
-    if c in DYNAMIC_CLASSES:
-        return tuple(k for k in DYNAMIC if k.cls == c)
-    if c in DYNAMIC2_CLASSES:
-        return tuple(k for k in DYNAMIC2 if k.cls == c)
-    if c in LINKED_CLASSES:
-        return {"LF1": LF1, "LF2aa": LF2AA, "LF2av": LF2AV, "LF2va": LF2VA, "LF3": LF3}[c]
-    if c in NPSF_CLASSES:
-        return tuple(k for k in NPSF if k.cls == c)
-    return {"SAF": SAF, "TF": TF, "SOF": SOF, "AF": AF, "CFin": CFIN, "CFid": CFID,
-            "CFst": CFST, "DRF": drf_kinds(retention)}[c]
+        c = classes[name.lower()]
+    for f in FAMILIES:
+        if c in f.classes:
+            return tuple(f.class_kinds(c, retention))
+    return None  # pragma: no cover
 
 
 def all_kinds(retention=DEFAULT_RETENTION) -> tuple[FaultKind, ...]:
-    return (STATIC + SAF + SOF + AF + CFIN + CFID + drf_kinds(retention) + DYNAMIC + DYNAMIC2
-            + LINKED + NPSF)
-
-
-LINKED = LF1 + LF2AA + LF2AV + LF2VA + LF3
+    return _group("all", retention)
 
 
 @dataclass(frozen=True)
@@ -97,36 +93,30 @@ def select_faults(spec: str = "static", retention=DEFAULT_RETENTION) -> FaultSel
     for raw in _split(spec):
         part = raw.strip()
         low = part.lower()
-        if low == "static":
-            got = STATIC
-        elif low == "classic":
-            got = SAF + TF + SOF + AF + CFIN + CFID + CFST
-        elif low == "retention":
-            got = drf_kinds(retention)
-        elif low == "dynamic":
-            got = DYNAMIC + DYNAMIC2
-        elif low == "linked":
-            got = LINKED
-        elif low == "npsf":
-            got = NPSF
-        elif low == "all":
-            got = all_kinds(retention)
-        elif part.startswith("<"):
-            got = (primitive(part),)
+        got = None
+        if low in GROUP_WORDS:
+            got = _group(low, retention)
         else:
+            for f in FAMILIES:
+                k = f.parse_kind(part)
+                if k is not None:
+                    got = (k,)
+                    break
+        if got is None:
             got = _class_kinds(part, retention)
-            if got is None:
-                named = {k.text.lower(): k for k in all_kinds(retention)}
-                if low in named:
-                    got = (named[low],)
-                else:
-                    raise FaultSpecError(
-                        f"unknown fault selection {part!r}; use static, classic, retention, dynamic, linked, npsf, all, "
-                        "a class (" + ", ".join(STATIC_CLASSES + ("SAF", "SOF", "AF", "CFin", "CFid", "DRF")
-                                                + DYNAMIC_CLASSES + DYNAMIC2_CLASSES + LINKED_CLASSES
-                                                + NPSF_CLASSES) +
-                        "), a kind such as SA0 or AF:alias, or a primitive such as <0w1/0/->"
-                    )
+        if got is None:
+            named = {}
+            for f in FAMILIES:
+                for k in f.kinds(retention):
+                    named.setdefault(k.text.lower(), k)
+            if low in named:
+                got = (named[low],)
+            else:
+                raise FaultSpecError(
+                    f"unknown fault selection {part!r}; use {', '.join(GROUP_WORDS[:-1])}, all, "
+                    "a class (" + ", ".join(all_classes()) +
+                    "), a kind such as SA0 or AF:alias, or a primitive such as <0w1/0/->"
+                )
         for k in got:
             kinds.setdefault(k.text, k)
     if not kinds:
@@ -276,80 +266,21 @@ def word_pairs(mem, scope: PairScope) -> tuple[np.ndarray, np.ndarray] | None:
 
 def instance_count(kind: FaultKind, mem, scope: PairScope) -> int:
     """Exact number of instances of ``kind`` on ``mem`` (no enumeration)."""
-    if kind.family == "group":
-        return npsf_count(kind, mem) if kind.cls in NPSF_CLASSES else lf3_count(mem, scope)
-    if kind.family == "af":
-        if kind.arity == 1:
-            return mem.words
-        pairs = word_pairs(mem, scope)
-        return mem.words * (mem.words - 1) if pairs is None else int(pairs[0].size)
-    if kind.arity == 1:
-        return mem.cells
-    pairs = cell_pairs(mem, scope)
-    return mem.cells * (mem.cells - 1) if pairs is None else int(pairs[0].size)
+    return family_of(kind).instance_count(kind, mem, scope)
 
 
 @dataclass(frozen=True)
 class Instance:
-    """One fault at one place: ``sites`` are cell indices (word·bits + bit), or for AF words."""
+    """One fault at one place: ``sites`` are cell indices (word·bits + bit), or words for
+    families whose :attr:`~marchkit.faults.family.Family.site` is ``words``."""
 
     kind: FaultKind
     sites: tuple[int, ...]
 
     def text(self, mem) -> str:
-        if self.kind.family == "group":
-            def gcell(c):
-                w, b = divmod(c, mem.bits)
-                return f"w{w}" if mem.bits == 1 else f"w{w}.b{b}"
-
-            return f"{self.kind.text} " + " ".join(
-                f"{r}={gcell(c)}" for r, c in zip(self.kind.roles, self.sites) if c >= 0)
-        if self.kind.family == "af":
-            names = "ab"
-            return f"{self.kind.text} " + " ".join(f"{names[i]}={s}" for i, s in enumerate(self.sites))
-
-        def cell(c):
-            w, b = divmod(c, mem.bits)
-            return f"w{w}" if mem.bits == 1 else f"w{w}.b{b}"
-
-        if len(self.sites) == 1:
-            return f"{self.kind.text} v={cell(self.sites[0])}"
-        return f"{self.kind.text} a={cell(self.sites[0])} v={cell(self.sites[1])}"
+        return family_of(self.kind).instance_text(self, mem)
 
 
 def enumerate_instances(kind: FaultKind, mem, scope: PairScope) -> Iterator[Instance]:
-    """Every instance of ``kind`` on ``mem``, in a fixed order (for audits and small arrays).
-    Group kinds: NPSF sites are (base, N, S, E, W) with -1 for a neighbour the edge cuts off;
-    LF3 sites are (a1, a2, v)."""
-    if kind.family == "group":
-        if kind.cls in NPSF_CLASSES:
-            for row in npsf_neighbourhoods(mem).tolist():
-                if npsf_applies(kind, [c >= 0 for c in row[1:]]):
-                    yield Instance(kind, tuple(row))
-            return
-        for a1, a2, v in lf3_triple_chunks(mem, scope):
-            for t in zip(a1.tolist(), a2.tolist(), v.tolist()):
-                yield Instance(kind, t)
-        return
-    if kind.family == "af" and kind.arity == 1:
-        for w in range(mem.words):
-            yield Instance(kind, (w,))
-        return
-    if kind.arity == 1:
-        for c in range(mem.cells):
-            yield Instance(kind, (c,))
-        return
-    if kind.family == "af":
-        pairs = word_pairs(mem, scope)
-        n = mem.words
-    else:
-        pairs = cell_pairs(mem, scope)
-        n = mem.cells
-    if pairs is None:
-        for a in range(n):
-            for v in range(n):
-                if a != v:
-                    yield Instance(kind, (a, v))
-    else:
-        for a, v in zip(pairs[0].tolist(), pairs[1].tolist()):
-            yield Instance(kind, (a, v))
+    """Every instance of ``kind`` on ``mem``, in a fixed order (for audits and small arrays)."""
+    return family_of(kind).enumerate_instances(kind, mem, scope)

@@ -35,6 +35,17 @@ from .primitives import FaultKind, Rule
 
 NPSF_CLASSES = ("ANPSF", "PNPSF", "SNPSF")
 NPSF_ROLES = ("b", "N", "S", "E", "W")
+LF3_ROLES = ("a1", "a2", "v")
+
+
+def roles(kind) -> tuple:
+    """The role names of a group kind's sites (``Instance.sites`` order)."""
+    return kind.params[0]
+
+
+def grules(kind) -> tuple:
+    """The :class:`GRule` s of a group kind."""
+    return kind.params[1]
 _DIRS = {"N": (-1, 0), "S": (1, 0), "E": (0, 1), "W": (0, -1)}
 
 
@@ -66,8 +77,8 @@ def _grule(rule: Rule, agg_role: int, victim: int, k: int) -> GRule:
 
 def _lf3_kind(fp1: Rule, fp2: Rule) -> FaultKind:
     return FaultKind(
-        f"a1{fp1.text}→a2{fp2.text}", "LF3", "group", 3, roles=("a1", "a2", "v"),
-        grules=(_grule(fp1, 0, 2, 3), _grule(fp2, 1, 2, 3)),
+        f"a1{fp1.text}→a2{fp2.text}", "LF3", "group", 3,
+        params=(LF3_ROLES, (_grule(fp1, 0, 2, 3), _grule(fp2, 1, 2, 3))),
         description=f"{fp1.text} with aggressor a1, then {fp2.text} with aggressor a2, same victim; "
                     "the second can undo the first")
 
@@ -95,8 +106,8 @@ def _npsf_kinds() -> tuple[FaultKind, ...]:
                         need[NPSF_ROLES.index(o)] = bt
                     arrow = "↑" if x == 0 else "↓"
                     out.append(FaultKind(
-                        f"ANPSF[{d}{arrow} {_pattern(others, bits)} b{y}]", "ANPSF", "group", 5,
-                        roles=NPSF_ROLES, grules=(GRule(tuple(need), (NPSF_ROLES.index(d), "w", 1 - x), 0, 1 - y),),
+                        f"ANPSF({d}{arrow} {_pattern(others, bits)} b{y})", "ANPSF", "group", 5,
+                        params=(NPSF_ROLES, (GRule(tuple(need), (NPSF_ROLES.index(d), "w", 1 - x), 0, 1 - y),)),
                         description=f"writing {1 - x} to neighbour {d} (holding {x}) while "
                                     f"{_pattern(others, bits)} flips the base cell from {y} to {1 - y}"))
     for y in (0, 1):                               # passive
@@ -105,8 +116,8 @@ def _npsf_kinds() -> tuple[FaultKind, ...]:
             need = (y,) + tuple(bits)
             arrow = "↑" if y == 0 else "↓"
             out.append(FaultKind(
-                f"PNPSF[b{arrow} {_pattern(nb, bits)}]", "PNPSF", "group", 5, roles=NPSF_ROLES,
-                grules=(GRule(need, (0, "w", 1 - y), 0, y),),
+                f"PNPSF(b{arrow} {_pattern(nb, bits)})", "PNPSF", "group", 5,
+                params=(NPSF_ROLES, (GRule(need, (0, "w", 1 - y), 0, y),)),
                 description=f"writing {1 - y} to the base cell (holding {y}) fails while the neighbours hold "
                             f"{_pattern(nb, bits)}"))
     for y in (0, 1):                               # static
@@ -114,8 +125,8 @@ def _npsf_kinds() -> tuple[FaultKind, ...]:
             bits = [(pat >> (3 - i)) & 1 for i in range(4)]
             need = (y,) + tuple(bits)
             out.append(FaultKind(
-                f"SNPSF[b{y} {_pattern(nb, bits)}]", "SNPSF", "group", 5, roles=NPSF_ROLES,
-                grules=(GRule(need, None, 0, 1 - y),),
+                f"SNPSF(b{y} {_pattern(nb, bits)})", "SNPSF", "group", 5,
+                params=(NPSF_ROLES, (GRule(need, None, 0, 1 - y),)),
                 description=f"the base cell cannot hold {y} while the neighbours hold {_pattern(nb, bits)}: "
                             f"it becomes {1 - y}"))
     return tuple(out)
@@ -127,7 +138,7 @@ NPSF = _npsf_kinds()
 def npsf_applies(kind: FaultKind, present) -> bool:
     """Whether ``kind`` has an instance at a base whose neighbours ``present`` (bool per role
     N S E W) exist: its aggressor exists and it asks 0 of every missing neighbour."""
-    g = kind.grules[0]
+    g = grules(kind)[0]
     if g.op is not None and g.op[0] != 0 and not present[g.op[0] - 1]:
         return False
     return all(present[i - 1] or g.need[i] == 0 for i in range(1, 5))
@@ -268,3 +279,79 @@ def lf3_count(mem, scope) -> int:
             return int((deg * (deg - 1)).sum())
         return min(p[1], n * (n - 1) * (n - 2))
     return sum(int(c[0].size) for c in lf3_triple_chunks(mem, scope))
+
+
+# ---- the family --------------------------------------------------------------------------
+
+from .family import Family, order_pattern, pattern_name  # noqa: E402
+
+
+class GroupFamily(Family):
+    """Kinds on three or more cells by role: LF3 and type-1 NPSF."""
+
+    name = "group"
+    classes = ("LF3",) + NPSF_CLASSES
+    labels = LF3_ROLES
+    short_labels = LF3_ROLES
+    needs = {
+        "LF3": "needs each aggressor's primitive sensitised alone and the victim read before the other undoes it",
+        "ANPSF": "needs each neighbour's transition under each pattern of the other neighbours, base in each "
+                 "state, then a base read (tiling or multi-background tests; march tests miss most)",
+        "PNPSF": "needs each base transition under each of the 16 neighbour patterns, then a base read "
+                 "(march tests with solid data reach only the all-equal patterns)",
+        "SNPSF": "needs each base value read under each of the 16 neighbour patterns "
+                 "(march tests with solid data reach only a few)",
+    }
+    where = {}
+
+    def groups(self, retention):
+        return {"linked": [(1, LF3)], "npsf": [(0, NPSF)], "all": [(12, LF3), (13, NPSF)]}
+
+    def class_kinds(self, cls, retention):
+        return LF3 if cls == "LF3" else tuple(k for k in NPSF if k.cls == cls)
+
+    def test_kinds(self, retention):
+        return LF3[::24] + NPSF[::8]
+
+    def instance_count(self, kind, mem, scope) -> int:
+        return npsf_count(kind, mem) if kind.cls in NPSF_CLASSES else lf3_count(mem, scope)
+
+    def enumerate_instances(self, kind, mem, scope):
+        """NPSF sites are (base, N, S, E, W), -1 for a neighbour the array's edge cuts off
+        (the ``--pairs`` scope does not apply: the neighbourhood is physical); LF3 sites are
+        (a1, a2, v) from the pair scope (see :func:`lf3_triple_chunks`)."""
+        from .catalogue import Instance
+
+        if kind.cls in NPSF_CLASSES:
+            for row in npsf_neighbourhoods(mem).tolist():
+                if npsf_applies(kind, [c >= 0 for c in row[1:]]):
+                    yield Instance(kind, tuple(row))
+            return
+        for a1, a2, v in lf3_triple_chunks(mem, scope):
+            for t in zip(a1.tolist(), a2.tolist(), v.tolist()):
+                yield Instance(kind, t)
+
+    def init_values(self, kind):
+        return kind.arity
+
+    def site_words(self, inst, mem):
+        return tuple(s // mem.bits for s in inst.sites if s >= 0)
+
+    def structure(self, inst, mem, rank) -> str:
+        names = [r for r, s in zip(roles(inst.kind), inst.sites) if s >= 0]
+        words = [s // mem.bits for s in inst.sites if s >= 0]
+        return pattern_name(order_pattern(words, rank), names)
+
+    def instance_text(self, inst, mem) -> str:
+        def cell(c):
+            w, b = divmod(c, mem.bits)
+            return f"w{w}" if mem.bits == 1 else f"w{w}.b{b}"
+
+        return f"{inst.kind.text} " + " ".join(
+            f"{r}={cell(c)}" for r, c in zip(roles(inst.kind), inst.sites) if c >= 0)
+
+    def site_counts(self, kind):
+        return (kind.arity, 0)
+
+
+FAMILY = GroupFamily()

@@ -78,3 +78,4 @@ LF2AA = tuple(_kind("LF2aa", a, b, 2) for a, b in _pairs(_TWO, _TWO))
 LF2AV = tuple(_kind("LF2av", a, b, 2) for a, b in _pairs(_TWO, _SINGLE))
 LF2VA = tuple(_kind("LF2va", a, b, 2) for a, b in _pairs(_SINGLE, _TWO))
 LF3_PAIRS = tuple(_pairs(_TWO, _TWO))       # (FP1 on a1, FP2 on a2): built in faults.group
+LINKED_RULES = LF1 + LF2AA + LF2AV + LF2VA
