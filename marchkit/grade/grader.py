@@ -168,7 +168,7 @@ def grade(test, mem, faults="static", pairs="neighbours", retention=None, engine
         PrimitiveRow(r.kind.text, r.kind.cls, r.instances, r.detected,
                      reason_for(r.kind.cls, r.missed_structures, partial=r.detected > 0, word_backgrounds=wbg)
                      if r.detected < r.instances else "")
-        for r in kinds if r.kind.is_primitive and r.instances
+        for r in kinds if r.instances
     ]
     n = sum(c.instances for c in classes)
     d = sum(c.detected for c in classes)

@@ -248,31 +248,41 @@ def _lf3_neighbour_counts(prep):
     if R > 6:            # many background runs: the generic path
         return None
     G = 1 << R
-    bgc = (prep.bg.reshape(R, -1).astype(np.int64) << np.arange(R)[:, None]).sum(axis=0)   # (cells,)
-    crank = prep.rank[np.arange(n) // prep.B]
-    cells = np.arange(n, dtype=np.int64)
+    bgc = (prep.bg.reshape(R, -1).astype(np.int32) << np.arange(R, dtype=np.int32)[:, None]).sum(axis=0)
+    crank = prep.rank[np.arange(n) // prep.B].astype(np.int64)
     valid = tab >= 0
     safe = np.where(valid, tab, 0)
     nrank = crank[safe]                                   # (n, D)
-    nbg = bgc[safe]
-    side = np.sign(nrank - crank[:, None]) + 1            # where each neighbour's word lies from v's
-    SENT = 27 * G * G * G
-    out: dict = {}
+    # per victim and slot: which way the neighbour's word lies from v's (0 before, 1 same,
+    # 2 after) and its background bits, one small code
+    slot = ((np.sign(nrank - crank[:, None]) + 1).astype(np.int32) * G + bgc[safe]).astype(np.int32)
+    SENT = 3 * (3 * G) * (3 * G) * G
+    # code of (a1, a2, v) = ((s · 3G + slot_a1) · 3G + slot_a2) · G + bg_v, s = which way a1's
+    # word lies from a2's; swapping a1 and a2 maps code c to perm[c]
+    c = np.arange(SENT)
+    bv, rest = c % G, c // G
+    sa2, rest = rest % (3 * G), rest // (3 * G)
+    sa1, sgn = rest % (3 * G), rest // (3 * G)
+    perm = (((2 - sgn) * 3 * G + sa2) * 3 * G + sa1) * G + bv
+    tot = np.zeros(SENT, dtype=np.int64)
+    reps: dict = {}
     for i in range(D):
-        for j in range(D):
-            if i == j:
+        for j in range(i + 1, D):
+            ok = valid[:, i] & valid[:, j]
+            if not ok.any():
                 continue
-            code = (((np.sign(nrank[:, i] - nrank[:, j]) + 1) * 3 + side[:, i]) * 3 + side[:, j])
-            code = ((code * G + nbg[:, i]) * G + nbg[:, j]) * G + bgc
-            code = np.where(valid[:, i] & valid[:, j], code, SENT)
+            sgn_ij = (np.sign(nrank[:, i] - nrank[:, j]) + 1).astype(np.int32)
+            code = ((sgn_ij * (3 * G) + slot[:, i]) * (3 * G) + slot[:, j]) * G + bgc
+            code[~ok] = SENT
             cnt = np.bincount(code, minlength=SENT + 1)[:SENT]
-            for c in np.nonzero(cnt)[0].tolist():
-                got = out.get(c)
-                if got is None:
-                    v = int(np.argmax(code == c))
-                    out[c] = (int(cnt[c]), np.array([tab[v, i], tab[v, j], v], dtype=np.int64))
-                else:
-                    out[c] = (got[0] + int(cnt[c]), got[1])
+            tot += cnt
+            np.add.at(tot, perm, cnt)
+            for cc in np.nonzero(cnt)[0].tolist():
+                if cc not in reps:
+                    v = int(np.argmax(code == cc))
+                    reps[cc] = np.array([tab[v, i], tab[v, j], v], dtype=np.int64)
+                    reps.setdefault(int(perm[cc]), np.array([tab[v, j], tab[v, i], v], dtype=np.int64))
+    out = {int(cc): (int(tot[cc]), reps[int(cc)]) for cc in np.nonzero(tot)[0]}
     return out
 
 
