@@ -273,3 +273,20 @@ def test_grade_rows_for_every_family(cli):
     rows = json.loads(out)["primitives"]
     assert {r["class"] for r in rows} == {"dCFds", "LF1", "SNPSF"}
     assert len(rows) == 36 + 24 + 32
+
+
+def test_intra_word_transition_coupling_hint_is_what_detects_them():
+    # Intra-word CFid/CFin need an aggressor bit to flip while the victim bit holds (van de
+    # Goor & Tlili, IEEE TC 52(10) 2003, from memory); a word write moves all bits with the
+    # background or none, so in marchkit only the first write of a background run can.  The
+    # intra-word background set leaves most missed; the list the hint names (each bit flipped
+    # alone from all-0 and from all-1) detects them all (derived, checked here).
+    from marchkit.grade.reasons import SAME_WORD_TRANSITION
+
+    t = find_in_library("March C-")
+    word = by_class(grade(t, make_memory(8, 4, backgrounds="word"), "CFid,CFin", "word"))
+    assert word["CFid"].coverage < 0.5 and word["CFin"].coverage < 0.5
+    assert SAME_WORD_TRANSITION in word["CFid"].reason
+    bgs = SAME_WORD_TRANSITION.split("--backgrounds ")[-1]
+    fixed = grade(t, make_memory(8, 4, backgrounds=bgs), "CFid,CFin", "word")
+    assert fixed.total.coverage == 1.0
