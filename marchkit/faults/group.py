@@ -77,7 +77,7 @@ def _grule(rule: Rule, agg_role: int, victim: int, k: int) -> GRule:
 
 def _lf3_kind(fp1: Rule, fp2: Rule) -> FaultKind:
     return FaultKind(
-        f"a1{fp1.text}→a2{fp2.text}", "LF3", "group", 3,
+        f"a1{fp1.text}→a2{fp2.text}", "LF3", "linked3", 3,
         params=(LF3_ROLES, (_grule(fp1, 0, 2, 3), _grule(fp2, 1, 2, 3))),
         description=f"{fp1.text} with aggressor a1, then {fp2.text} with aggressor a2, same victim; "
                     "the second can undo the first")
@@ -106,7 +106,7 @@ def _npsf_kinds() -> tuple[FaultKind, ...]:
                         need[NPSF_ROLES.index(o)] = bt
                     arrow = "↑" if x == 0 else "↓"
                     out.append(FaultKind(
-                        f"ANPSF({d}{arrow} {_pattern(others, bits)} b{y})", "ANPSF", "group", 5,
+                        f"ANPSF({d}{arrow} {_pattern(others, bits)} b{y})", "ANPSF", "npsf", 5,
                         params=(NPSF_ROLES, (GRule(tuple(need), (NPSF_ROLES.index(d), "w", 1 - x), 0, 1 - y),)),
                         description=f"writing {1 - x} to neighbour {d} (holding {x}) while "
                                     f"{_pattern(others, bits)} flips the base cell from {y} to {1 - y}"))
@@ -116,7 +116,7 @@ def _npsf_kinds() -> tuple[FaultKind, ...]:
             need = (y,) + tuple(bits)
             arrow = "↑" if y == 0 else "↓"
             out.append(FaultKind(
-                f"PNPSF(b{arrow} {_pattern(nb, bits)})", "PNPSF", "group", 5,
+                f"PNPSF(b{arrow} {_pattern(nb, bits)})", "PNPSF", "npsf", 5,
                 params=(NPSF_ROLES, (GRule(need, (0, "w", 1 - y), 0, y),)),
                 description=f"writing {1 - y} to the base cell (holding {y}) fails while the neighbours hold "
                             f"{_pattern(nb, bits)}"))
@@ -125,7 +125,7 @@ def _npsf_kinds() -> tuple[FaultKind, ...]:
             bits = [(pat >> (3 - i)) & 1 for i in range(4)]
             need = (y,) + tuple(bits)
             out.append(FaultKind(
-                f"SNPSF(b{y} {_pattern(nb, bits)})", "SNPSF", "group", 5,
+                f"SNPSF(b{y} {_pattern(nb, bits)})", "SNPSF", "npsf", 5,
                 params=(NPSF_ROLES, (GRule(need, None, 0, 1 - y),)),
                 description=f"the base cell cannot hold {y} while the neighbours hold {_pattern(nb, bits)}: "
                             f"it becomes {1 - y}"))
@@ -287,7 +287,9 @@ from .family import Family, order_pattern, pattern_name  # noqa: E402
 
 
 class GroupFamily(Family):
-    """Kinds on three or more cells by role: LF3 and type-1 NPSF."""
+    """Kinds on three or more cells by role (group rules).  Two families share this code and
+    the engine modules: ``linked3`` (LF3) and ``npsf`` (type-1 NPSF) — registered apart so
+    that the engine can grade them in parallel."""
 
     name = "group"
     classes = ("LF3",) + NPSF_CLASSES
@@ -304,14 +306,21 @@ class GroupFamily(Family):
     }
     where = {}
 
+    def __init__(self, name, classes):
+        self.name = name
+        self.classes = classes
+        self.needs = {c: GroupFamily.needs[c] for c in classes}
+
     def groups(self, retention):
-        return {"linked": [(1, LF3)], "npsf": [(0, NPSF)], "all": [(12, LF3), (13, NPSF)]}
+        if self.name == "linked3":
+            return {"linked": [(1, LF3)], "all": [(12, LF3)]}
+        return {"npsf": [(0, NPSF)], "all": [(13, NPSF)]}
 
     def class_kinds(self, cls, retention):
         return LF3 if cls == "LF3" else tuple(k for k in NPSF if k.cls == cls)
 
     def test_kinds(self, retention):
-        return LF3[::24] + NPSF[::8]
+        return LF3[::24] if self.name == "linked3" else NPSF[::8]
 
     def instance_count(self, kind, mem, scope) -> int:
         return npsf_count(kind, mem) if kind.cls in NPSF_CLASSES else lf3_count(mem, scope)
@@ -354,4 +363,5 @@ class GroupFamily(Family):
         return (kind.arity, 0)
 
 
-FAMILY = GroupFamily()
+LINKED3 = GroupFamily("linked3", ("LF3",))
+NPSF_FAMILY = GroupFamily("npsf", NPSF_CLASSES)

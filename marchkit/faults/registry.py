@@ -14,7 +14,8 @@ FAMILIES = (
     stuck_open.FAMILY,
     decoder.FAMILY,
     retention.FAMILY,
-    group.FAMILY,
+    group.LINKED3,
+    group.NPSF_FAMILY,
 )
 
 _BY_NAME = {f.name: f for f in FAMILIES}

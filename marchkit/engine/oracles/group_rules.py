@@ -1,4 +1,4 @@
-"""Oracle of the group family (LF3, NPSF; :mod:`marchkit.faults.group`).
+"""Oracle of the group-rule families (``linked3``: LF3; ``npsf``; :mod:`marchkit.faults.group`).
 
 Each ``GRule`` fires when its operation is applied to its role's cell while every role it
 names holds the required value (judged on the values before the operation); the victim then

@@ -1,4 +1,4 @@
-"""Fast path of the ``group`` family (LF3, NPSF): keyed, vectorised.
+"""Fast path of the group-rule families (``linked3``: LF3; ``npsf``): keyed, vectorised.
 
 Why it is exact: a group fault involves only its roles' cells, and static group rules look
 only at those cells' values, which change only by operations on their words.  So the verdict
@@ -24,7 +24,8 @@ from __future__ import annotations
 import numpy as np
 
 from ...faults import Instance
-from ...faults.group import FAMILY, grules
+from ...faults import family_of
+from ...faults.group import grules
 from ..results import KindResult
 from .base import FastPath
 
@@ -302,7 +303,6 @@ class GroupFast(FastPath):
         from ...faults.group import NPSF_CLASSES, npsf_applies, roles
 
         prep = eng.prep
-        fam = FAMILY
         rank = prep.rank
         for npsf in (True, False):
             ks = [kd for kd in kinds if (kd.cls in NPSF_CLASSES) == npsf]
@@ -341,7 +341,7 @@ class GroupFast(FastPath):
                         r.merge_element(prep.sched.segments[events[ev[j]][0]].element)
                     else:
                         inst = Instance(kd, tuple(int(x) for x in reps[kk]))
-                        r.missed_structures.add(fam.structure(inst, prep.mem, rank))
+                        r.missed_structures.add(family_of(kd).structure(inst, prep.mem, rank))
                         eng.take(r, [inst])
         return results
 
