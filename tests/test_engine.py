@@ -666,3 +666,35 @@ def test_many_any_order_elements_are_linear():
     one_cell = [k for k in kinds if k.arity == 1 and k.family == "rules"]
     _, ref_up = assert_agree(up, mem, one_cell, ALL_PAIRS)
     assert [d for d, _ in ref[:len(ref_up)]] == [d for d, _ in ref_up]
+
+
+# ---------------------------------------------------------------------------------------
+# grid-counted pair scopes against the listed pairs
+
+
+@pytest.mark.parametrize("kw", PAIR_MEMORIES + [dict(words=8, bits=3, mux=1, neighbours=4, backgrounds=("rows", "word")),
+                                                dict(words=16, bits=5, mux=16, backgrounds=("checkerboard", "columns"))],
+                         ids=lambda kw: f"{kw['words']}x{kw.get('bits', 1)}m{kw.get('mux', 1)}")
+@pytest.mark.parametrize("spec", ["neighbours", "word", "neighbours,word"])
+def test_grid_counts_equal_counts_over_listed_pairs(kw, spec):
+    """Pair counts per (structure, key, key) counted on the cell grid without a list, and the
+    closed-form instance counts, against the same counts over the explicit pair lists of
+    ``cell_pairs``/``word_pairs`` (which walk ``neighbour_edges``)."""
+    from marchkit.engine.setup import MemorySetup
+    from marchkit.faults import cell_pair_count, cell_pairs, word_pair_count, word_pairs
+
+    mem = make_memory(**kw)
+    scope = parse_pairs(spec)
+    ms = MemorySetup(mem)
+    a, v = cell_pairs(mem, scope)
+    assert np.array_equal(ms.pair_counts(scope), ms.pair_counts_explicit(a, v))
+    assert cell_pair_count(mem, scope) == a.size
+    wa, wb = word_pairs(mem, scope)
+    assert word_pair_count(mem, scope) == wa.size
+    wk, rep = ms.word_keys()
+    U = rep.size
+    got = ms.word_pair_counts(scope)
+    first = ms.rank[wa] < ms.rank[wb]
+    for st, m in ((1, first), (2, ~first)):
+        want = np.bincount(wk[wa[m]] * U + wk[wb[m]], minlength=U * U).reshape(U, U)
+        assert np.array_equal(got[st], want)

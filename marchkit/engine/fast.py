@@ -31,45 +31,41 @@ __all__ = ["Engine", "Prepared", "KindResult", "Detection"]
 
 
 class Prepared:
+    """One test on one memory: the memory's shared :class:`~marchkit.engine.setup.MemorySetup`
+    (``setup``; its arrays are also attributes here: ``order``/``rank`` (n,) int64, ``bg``
+    (R, n, B) uint8, ``key_bits`` (K, R) int8, ``cell_key`` (n·B,) small int) and the
+    test's schedule facts (``sched``, ``determined`` — the compared reads, ``any_elems``)."""
+
     def __init__(self, test, mem, sched=None):
-        from ..model import address_order, background_stack, ranks, schedule
+        from ..model import schedule
+        from .setup import memory_setup
 
         self.test = test
         self.mem = mem
         self.sched = sched or schedule(test, mem)
-        self.order = address_order(mem)
-        self.rank = ranks(self.order)
-        self.bg = background_stack(mem)          # (R, n, B) uint8
-        self.R = self.bg.shape[0]
-        self.n = mem.words
-        self.B = mem.bits
+        self.setup = ms = memory_setup(mem)
+        self.order, self.rank, self.bg = ms.order, ms.rank, ms.bg
+        self.R, self.n, self.B = ms.R, ms.n, ms.B
+        self.key_bits, self.cell_key, self.K = ms.key_bits, ms.cell_key, ms.K
         self.determined = determined_reads(self.sched)
         self.any_elems = [i for i, e in enumerate(test.elements) if e.order == "any"]
-        # key of each cell: its background bit in every run
-        w = np.arange(self.R, dtype=np.int64)
-        # key of each cell: the index of its background bits (one per run) and of its word's
-        # position (1 first word of the ⇑ order, 2 last, 0 any other) among the combinations
-        # present; key_bits[k] / key_pos[k] give them back.  The position matters only to
-        # dynamic faults: the last operation of an element and the first of the next are back
-        # to back on the first or last word.
-        bits = self.bg.reshape(self.R, -1).T                       # (n*B, R)
-        pos = np.zeros(self.n, dtype=np.int64)
-        pos[self.order[0]] = 1
-        pos[self.order[-1]] = 2
-        pos = np.repeat(pos, self.B)
-        if self.R <= 60:
-            raw = (bits.astype(np.int64) << w[None, :]).sum(axis=1) | (pos << self.R)
-            uniq, inv = np.unique(raw, return_inverse=True)
-            self.key_bits = ((uniq[:, None] >> w[None, :]) & 1).astype(np.int8)
-            self.key_pos = (uniq >> self.R).astype(np.int8)
-        else:
-            uniq_rows, inv = np.unique(np.concatenate([bits, pos[:, None]], axis=1), axis=0,
-                                       return_inverse=True)
-            self.key_bits = uniq_rows[:, :-1].astype(np.int8)
-            self.key_pos = uniq_rows[:, -1].astype(np.int8)
-        self.cell_key = inv.ravel().astype(np.int64)               # (n*B,)
-        self.K = self.key_bits.shape[0]
-        self._word_key = None
+        self._dyn = None
+
+    def dyn_keys(self):
+        """Cell keys for dynamic faults: (cell_key (n·B,) int64, key_bits (K', R) int8, key_pos
+        (K',) int8, K').  A key is the cell's background bits (one per run) *and* its word's
+        position in the ⇑ order (1 first, 2 last, 0 any other): the last operation of an
+        element and the first of the next are back to back on the first or last word, so a
+        dynamic fault's verdict depends on that position too."""
+        if self._dyn is None:
+            pos = np.zeros(self.n, dtype=np.int64)
+            pos[self.order[0]] = 1
+            pos[self.order[-1]] = 2
+            ext = np.repeat(pos, self.B) * self.K + self.cell_key.astype(np.int64)
+            uniq, inv = np.unique(ext, return_inverse=True)
+            self._dyn = (inv.ravel().astype(np.int64), self.key_bits[uniq % self.K],
+                         (uniq // self.K).astype(np.int8), int(uniq.size))
+        return self._dyn
 
     def joined(self, si) -> bool:
         """Whether element segment ``si`` starts in the cycle the previous element segment
@@ -97,19 +93,12 @@ class Prepared:
         return True if any_up is None else any_up[self.any_elems.index(seg.element)]
 
     def word_keys(self):
-        """(key per word, representative word per key): words with the same data in every run."""
-        if self._word_key is None:
-            flat = np.ascontiguousarray(self.bg.transpose(1, 0, 2).reshape(self.n, -1))
-            _, first, inv = np.unique(flat, axis=0, return_index=True, return_inverse=True)
-            self._word_key = (inv.ravel().astype(np.int64), first.astype(np.int64))
-        return self._word_key
+        """(key (n,) int64 per word, representative word (U,) int64 per key)."""
+        return self.setup.word_keys()
 
     def word_key_hist(self):
         """(n, K) int64: how many cells of each word have each key."""
-        if getattr(self, "_wkh", None) is None:
-            w = np.repeat(np.arange(self.n, dtype=np.int64), self.B)
-            self._wkh = np.bincount(w * self.K + self.cell_key, minlength=self.n * self.K).reshape(self.n, self.K)
-        return self._wkh
+        return self.setup.word_key_hist()
 
     def cycle_of(self, si, k, word: np.ndarray) -> np.ndarray:
         seg = self.sched.segments[si]
@@ -129,7 +118,7 @@ def sweep_orders(prep, reach, transition):
     """Whether some choice of ⇕ orders leaves each key undetected — without 2^k scenarios.
 
     ``reach`` (M, NS) bool: the states (of NS per key) each of M keys may start in.
-    ``transition(si, up)`` → ``(end, det)``, both (M, NS): the state (intp) each start state
+    ``transition(si, up)`` → ``(end, det)``, both (M, NS): the state (small int) each start state
     is in after element segment ``si`` run ⇑ (``up``) or ⇓, and whether a read detected on
     the way (bool).  It is called at most twice per segment.  The set of reachable undetected
     states is carried from segment to segment (see :mod:`marchkit.engine.core`); with several
@@ -141,7 +130,6 @@ def sweep_orders(prep, reach, transition):
     segs = prep.sched.segments
     last_run = segs[-1].run if segs else 0
     M, NS = reach.shape
-    rows = np.broadcast_to(np.arange(M)[:, None], (M, NS))
     alive = {(): reach}
     cache = {}
     for si, seg in enumerate(segs):
@@ -164,7 +152,8 @@ def sweep_orders(prep, reach, transition):
                 if not keep.any():
                     continue
                 nr = np.zeros((M, NS), dtype=bool)
-                nr[rows[keep], end[keep]] = True
+                for e in range(NS):         # reached state e from some kept state
+                    nr[:, e] = (keep & (end == e)).any(axis=1)
                 if seg.order == "any":
                     c = dict(chosen)
                     if seg.run < last_run:
@@ -192,34 +181,14 @@ def sweep_orders(prep, reach, transition):
     return out
 
 
-# ---------------------------------------------------------------------------------------
-# parallel grading: a pure function of (engine, family) run in forked workers
-
-_FORKED: dict = {}
-
-
-def _family_work(fam):
-    engine, fams, scope = _FORKED["job"]
-    return engine.grade_family(fam, fams[fam], scope)
-
-
-def _default_workers(prep, n_steps: int) -> int:
-    import multiprocessing
-    import os
-    import threading
-
-    if n_steps < 2 or prep.n * prep.B < (1 << 18) or (os.cpu_count() or 1) < 2:
-        return 1
-    if "fork" not in multiprocessing.get_all_start_methods() or threading.active_count() > 1:
-        return 1
-    return 2
-
-
 class Engine:
     """Grades a selection of fault kinds on one (test, memory), family by family through
     the fast paths of :mod:`marchkit.engine.fastpaths`."""
 
     def __init__(self, test, mem, sched=None, examples: int = 0):
+        from .setup import check_limits
+
+        check_limits(mem)             # before any work
         self.prep = Prepared(test, mem, sched)
         self.examples = examples      # how many undetected instances to name per kind
         self.scratch: dict = {}       # per-call state of a fast path (not shared across calls)
@@ -243,52 +212,36 @@ class Engine:
     def grade(self, selection, scope, progress=None, workers=None):
         """Counts (one :class:`KindResult` per kind of ``selection``, in its order).
 
-        The families are independent pure computations over their kinds
-        (:func:`_family_work`).  On large arrays they run in ``workers`` forked
-        processes (default: 2 where the machine has two cores, the array has at least 2^18
-        cells, fork is available and no other thread is running).
+        First every family's shared set-up is made (``FastPath.prepare``: pair counts and
+        keys, cached per memory and scope, so every test of a comparison reuses them); then
+        the families — independent pure computations over their kinds — run, on large arrays
+        in ``workers`` forked processes (:mod:`marchkit.engine.workers`; default 2 where the
+        machine has two cores, the array has at least 2^18 cells, fork is available and no
+        other thread is running).
         """
+        from .workers import can_fork, map_forked
+
         fams: dict[str, list] = {}
         for k in selection.kinds:
             fams.setdefault(k.family, []).append(k)
         steps = [f.name for f in FAMILIES if f.name in fams]
-        if workers is None:
-            workers = _default_workers(self.prep, len(steps))
-        results: dict[str, KindResult] = {}
-        done = 0
         if progress:
             progress(steps[0] if steps else "done", 0, len(steps))
-        if workers > 1 and len(steps) > 1:
-            import multiprocessing
-            from concurrent.futures import ProcessPoolExecutor, as_completed
+        for f in steps:   # the shared set-up (cached per memory and scope), before any fork
+            fast_path(f).FAST.prepare(self, fams[f], scope)
+        if workers is None:
+            workers = can_fork(self.prep.n * self.prep.B) if len(steps) > 1 else 1
+        done = [0]
 
-            for f in steps:    # shared lazy state, built once before the fork
-                fast_path(f).FAST.prepare(self, fams[f], scope)
-            _FORKED["job"] = (self, fams, scope)
-            try:
-                with ProcessPoolExecutor(max_workers=workers,
-                                         mp_context=multiprocessing.get_context("fork")) as pool:
-                    futs = {pool.submit(_family_work, f): f for f in steps}
-                    try:
-                        for fut in as_completed(futs):
-                            results.update(fut.result())
-                            done += 1
-                            if progress:
-                                progress(futs[fut], done, len(steps))
-                    except BaseException:
-                        for f in futs:      # a failing worker cancels the others
-                            f.cancel()
-                        for p in list(getattr(pool, "_processes", {}).values()):
-                            p.terminate()
-                        raise
-            finally:
-                _FORKED.clear()
-        else:
-            for fam in steps:
-                if progress:
-                    progress(fam, done, len(steps))
-                results.update(self.grade_family(fam, fams[fam], scope))
-                done += 1
+        def tick(i):
+            done[0] += 1
+            if progress:
+                progress(steps[i], done[0], len(steps))
+
+        parts = map_forked(lambda f: self.grade_family(f, fams[f], scope), steps, workers, tick)
+        results: dict[str, KindResult] = {}
+        for part in parts:
+            results.update(part)
         if progress:
             progress("done", len(steps), len(steps))
         return [results[k.text] for k in selection.kinds]

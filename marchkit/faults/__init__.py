@@ -3,8 +3,8 @@
 Families are registered in :mod:`marchkit.faults.registry`; see DEVELOPERS.md."""
 
 from .catalogue import (DEFAULT_RETENTION, FaultSelection, Instance, PairScope, all_classes, all_kinds,
-                        cell_pairs, enumerate_instances, format_seconds, instance_count,
-                        parse_pairs, select_faults, word_pairs)
+                        cell_pair_count, cell_pairs, enumerate_instances, format_seconds, instance_count,
+                        parse_pairs, select_faults, word_pair_count, word_pairs)
 from .decoder import AF
 from .family import Family, order_pattern, pattern_name
 from .primitives import (CFID, CFIN, CFST, CLASSIC_CLASSES, COUPLING_CLASSES, DYNAMIC,
@@ -20,7 +20,7 @@ from .stuck_open import SOF
 __all__ = [
     "DEFAULT_RETENTION", "FaultSelection", "Instance", "PairScope", "all_classes", "all_kinds", "cell_pairs",
     "enumerate_instances", "format_seconds", "instance_count", "parse_pairs", "select_faults",
-    "word_pairs", "AF", "CFID", "DYNAMIC", "DYNAMIC_CLASSES", "CFIN", "CFST", "CLASSIC_CLASSES",
+    "word_pairs", "cell_pair_count", "word_pair_count", "AF", "CFID", "DYNAMIC", "DYNAMIC_CLASSES", "CFIN", "CFST", "CLASSIC_CLASSES",
     "COUPLING_CLASSES", "SAF", "SINGLE_CLASSES", "SOF", "STATIC", "STATIC_CLASSES", "TF", "Cond",
     "FaultKind", "Rule", "drf_kinds", "parse_rule", "primitive", "FAMILIES", "Family", "family",
     "family_of", "class_family", "order_pattern", "pattern_name", "LF1", "LF2AA", "LF2AV", "LF2VA",

@@ -27,7 +27,7 @@ from ..units import format_seconds  # noqa: F401  (re-exported)
 from .registry import FAMILIES, family_of
 
 DEFAULT_RETENTION = (Fraction(1, 1000),)
-MAX_EXPLICIT_PAIRS = 48_000_000     # directed pairs held as arrays (~3 GB at peak while grading)
+MAX_EXPLICIT_PAIRS = 48_000_000     # directed pairs listed as arrays (enumeration, mixed sampled scopes only)
 GROUP_WORDS = ("static", "classic", "retention", "dynamic", "linked", "npsf", "all")
 
 
@@ -171,6 +171,18 @@ def parse_pairs(spec: str = "neighbours") -> PairScope:
     return PairScope(tuple(dict.fromkeys(parts)), spec)
 
 
+def _unique(x: np.ndarray) -> np.ndarray:
+    """Sorted distinct values (as ``np.unique``, but sort-based: numpy's hash-based unique is
+    slow on millions of distinct values)."""
+    x = np.sort(np.asarray(x), kind="stable")
+    if x.size == 0:
+        return x
+    keep = np.empty(x.size, dtype=bool)
+    keep[0] = True
+    keep[1:] = x[1:] != x[:-1]
+    return x[keep]
+
+
 def _sample_pairs(n: int, k: int, seed: int) -> tuple[np.ndarray, np.ndarray]:
     total = n * (n - 1)
     rng = np.random.default_rng(seed)
@@ -179,9 +191,9 @@ def _sample_pairs(n: int, k: int, seed: int) -> tuple[np.ndarray, np.ndarray]:
     elif total < 50_000_000:
         idx = np.sort(rng.choice(total, size=k, replace=False))
     else:
-        got = np.unique(rng.integers(0, total, size=int(k * 1.1) + 16))
+        got = _unique(rng.integers(0, total, size=int(k * 1.1) + 16))
         while got.size < k:
-            got = np.unique(np.concatenate([got, rng.integers(0, total, size=k)]))
+            got = _unique(np.concatenate([got, rng.integers(0, total, size=k)]))
         idx = np.sort(rng.permutation(got)[:k])
     a = idx // (n - 1)
     r = idx % (n - 1)
@@ -196,7 +208,8 @@ def _check_pair_budget(mem) -> None:
 
         raise EngineLimitError(
             f"{n:,} cells have about {n * mem.neighbours:,} neighbour pairs, more than marchkit "
-            f"lists at once ({MAX_EXPLICIT_PAIRS:,}); grade a sub-array, or use --pairs sample:K or all"
+            f"lists at once ({MAX_EXPLICIT_PAIRS:,}); grading counts them without a list, but "
+            "naming every instance (or mixing neighbours with sample:K) needs one"
         )
 
 
@@ -227,7 +240,7 @@ def cell_pairs(mem, scope: PairScope) -> tuple[np.ndarray, np.ndarray] | None:
     a = np.concatenate(a_parts)
     v = np.concatenate(v_parts)
     if len(scope.parts) > 1:
-        key = np.unique(a * n + v)
+        key = _unique(a * n + v)
         a, v = key // n, key % n
     return a, v
 
@@ -246,7 +259,7 @@ def word_pairs(mem, scope: PairScope) -> tuple[np.ndarray, np.ndarray] | None:
             ca, cv = neighbour_edges(mem)
             a, b = ca // mem.bits, cv // mem.bits
             keep = a != b
-            key = np.unique(a[keep] * n + b[keep])
+            key = _unique(a[keep] * n + b[keep])
             a, b = key // n, key % n
         elif part[0] == "word":
             continue
@@ -259,9 +272,39 @@ def word_pairs(mem, scope: PairScope) -> tuple[np.ndarray, np.ndarray] | None:
     a = np.concatenate(a_parts)
     b = np.concatenate(b_parts)
     if len(a_parts) > 1:
-        key = np.unique(a * n + b)
+        key = _unique(a * n + b)
         a, b = key // n, key % n
     return a, b
+
+
+def cell_pair_count(mem, scope: PairScope) -> int:
+    """Number of ordered cell pairs in ``scope``, in closed form for ``all``, ``neighbours``
+    and ``word`` (and their unions); sampled scopes are listed."""
+    from ..model.geometry import neighbour_pair_count, same_word_neighbour_pair_count
+
+    if scope.is_all:
+        return mem.cells * (mem.cells - 1)
+    kinds = {p[0] for p in scope.parts}
+    if kinds <= {"neighbours", "word"}:
+        nb = neighbour_pair_count(mem) if "neighbours" in kinds else 0
+        if "word" in kinds:
+            nb += mem.words * mem.bits * (mem.bits - 1)
+            if "neighbours" in kinds:
+                nb -= same_word_neighbour_pair_count(mem)
+        return nb
+    return int(cell_pairs(mem, scope)[0].size)
+
+
+def word_pair_count(mem, scope: PairScope) -> int:
+    """Number of ordered pairs of distinct words in ``scope`` (closed form but for samples)."""
+    from ..model.geometry import neighbour_word_pair_count
+
+    if scope.is_all:
+        return mem.words * (mem.words - 1)
+    kinds = {p[0] for p in scope.parts}
+    if kinds <= {"neighbours", "word"}:
+        return neighbour_word_pair_count(mem) if "neighbours" in kinds else 0
+    return int(word_pairs(mem, scope)[0].size)
 
 
 def instance_count(kind: FaultKind, mem, scope: PairScope) -> int:

@@ -100,15 +100,13 @@ class Family:
         return kind.arity
 
     def instance_count(self, kind, mem, scope) -> int:
-        from .catalogue import cell_pairs, word_pairs
+        from .catalogue import cell_pair_count, word_pair_count
 
-        n = mem.cells if self.site == "cells" else mem.words
         if self.arity(kind) == 1:
-            return n
+            return mem.cells if self.site == "cells" else mem.words
         if self.arity(kind) != 2:
             raise NotImplementedError(f"{self.name}: instance_count for {self.arity(kind)} sites")
-        pairs = cell_pairs(mem, scope) if self.site == "cells" else word_pairs(mem, scope)
-        return n * (n - 1) if pairs is None else int(pairs[0].size)
+        return cell_pair_count(mem, scope) if self.site == "cells" else word_pair_count(mem, scope)
 
     def enumerate_instances(self, kind, mem, scope) -> Iterator:
         from .catalogue import Instance, cell_pairs, word_pairs

@@ -5,7 +5,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from ...faults import Instance, word_pairs
+from ...faults import Instance
+from ..setup import dense_codes
 from ..core import verdict
 from ..results import KindResult
 from .base import FastPath
@@ -13,6 +14,10 @@ from .rules import AFIRST, VFIRST
 
 
 class DecoderFast(FastPath):
+    """Keys: a word's key ``wk`` (n,) int64 numbers its data in every run (``prep.word_keys()``,
+    with a representative word (U,) int64 per key); pair counts per (structure, key a, key b)
+    are (U, U) int64 tables from the shared set-up.  One oracle run per key and kind."""
+
     def _af_verdict(self, eng, kind, a, b=None):
         inst = Instance(kind, (a,) if b is None else (a, b))
         ctx = eng.projected_context(inst.sites)
@@ -22,7 +27,7 @@ class DecoderFast(FastPath):
         prep = eng.prep
         wk, rep = eng.prep.word_keys()
         U = rep.size
-        pairs = word_pairs(prep.mem, scope) if any(k.arity == 2 for k in kinds) else None
+        cnt = prep.setup.word_pair_counts(scope) if any(k.arity == 2 for k in kinds) else None
         for kind in kinds:
             res = results.setdefault(kind.text, KindResult(kind))
             if kind.arity == 1:
@@ -39,28 +44,14 @@ class DecoderFast(FastPath):
                             ws = np.nonzero(wk == u)[0][:eng.examples]
                             eng.take(res, [Instance(kind, (int(w),)) for w in ws])
                 continue
-            if pairs is None:
-                H = np.zeros((prep.n, U), dtype=np.float64)
-                H[np.arange(prep.n), wk] = 1
-                Hs = H[prep.order]
-                Pf = np.cumsum(Hs, axis=0) - Hs
-                cnt = {AFIRST: np.rint(Pf.T @ Hs).astype(np.int64), VFIRST: np.rint(Hs.T @ Pf).astype(np.int64)}
-            else:
-                a, b = pairs
-                s = np.where(prep.rank[a] < prep.rank[b], AFIRST, VFIRST)
-                cnt = {}
-                for st in (AFIRST, VFIRST):
-                    m = s == st
-                    cnt[st] = np.bincount(wk[a[m]] * U + wk[b[m]], minlength=U * U).reshape(U, U)
+            reps = None if scope.is_all else self._scope_reps(eng, scope, cnt)
             for st, c in cnt.items():
                 for ua, ub in zip(*np.nonzero(c)):
                     n_ = int(c[ua, ub])
-                    if pairs is None:
+                    if reps is None:
                         wa, wb = self._af_pair_rep(eng, ua, ub, st)
                     else:
-                        a, b = pairs
-                        i = np.nonzero((wk[a] == ua) & (wk[b] == ub) & ((prep.rank[a] < prep.rank[b]) == (st == AFIRST)))[0][0]
-                        wa, wb = int(a[i]), int(b[i])
+                        wa, wb = reps[(st, int(ua), int(ub))]
                     det, ev = self._af_verdict(eng, kind, wa, wb)
                     res.instances += n_
                     if det:
@@ -70,6 +61,25 @@ class DecoderFast(FastPath):
                         res.missed_structures.add("a first" if st == AFIRST else "b first")
                         eng.take(res, [Instance(kind, (wa, wb))])
         return results
+
+    def _scope_reps(self, eng, scope, cnt):
+        """{(structure, key a, key b): a first word pair of ``scope`` with those keys}."""
+        prep = eng.prep
+        wk, rep = prep.word_keys()
+        U = rep.size
+        want = {(st, int(ua), int(ub)) for st, c in cnt.items() for ua, ub in zip(*np.nonzero(c))}
+        out = {}
+        for a, b in prep.setup.word_pair_chunks(scope):
+            st = np.where(prep.rank[a] < prep.rank[b], AFIRST, VFIRST)
+            code = (st * U + wk[a]) * U + wk[b]
+            _, first = dense_codes(code)
+            for i in first:
+                key = (int(st[i]), int(wk[a[i]]), int(wk[b[i]]))
+                if key in want and key not in out:
+                    out[key] = (int(a[i]), int(b[i]))
+            if len(out) == len(want):
+                break
+        return out
 
     def _af_pair_rep(self, eng, ua, ub, st):
         """Two distinct words with keys (ua, ub), a before b in ⇑ iff st == AFIRST."""
@@ -88,6 +98,8 @@ class DecoderFast(FastPath):
 
     def prepare(self, eng, kinds, scope):
         eng.prep.word_keys()
+        if any(k.arity == 2 for k in kinds):
+            eng.prep.setup.word_pair_counts(scope)
 
     def verdicts(self, eng, instances):
         out = []

@@ -10,9 +10,10 @@ explicit pairs).
 from __future__ import annotations
 
 import numpy as np
+from typing import NamedTuple
 
 
-from ...faults import Instance, cell_pairs
+from ...faults import Instance
 from ..results import KindResult
 from .base import FastPath
 
@@ -22,7 +23,11 @@ STRUCTURES = {SINGLE: "single", AFIRST: "aggressor first", VFIRST: "victim first
 
 
 def _rule_params(kinds):
-    """Parameter arrays (slots × kinds) describing each kind's rules."""
+    """Parameter arrays describing each kind's rules: ``{name: (S, M) int8}`` for S rule slots
+    (the most rules of any kind) × M kinds — ``rt`` the rule type (0 none, 1 state, 2 victim
+    op, 3 aggressor op, 4 victim op with aggressor state, 5 two states, 6 dynamic), the
+    aggressor's and victim's ``pre``/``op`` (0 none, 1 w, 2 r)/``val``, ``f``, ``r``, and the
+    dynamic second operation's ``t_pre``/``t_op``/``t_val``."""
     S = max(len(k.rules) for k in kinds)
     M = len(kinds)
     P = {name: np.zeros((S, M), dtype=np.int8) for name in
@@ -282,6 +287,7 @@ def rules_batch(prep, structure, kind_idx, params, bga, bgv, posa=None, posv=Non
             return ((a.astype(np.intp) * 2 + v) * NJA + (ja_ if two else 0)) * J + (jv_ if b.dynamic else 0)
 
         def transition(si, up):
+            """(end state (M, NS) intp, detected (M, NS) bool) of segment ``si`` from each state."""
             f = np.full((M, NS), -1, dtype=np.int64)
             bc = lambda x: np.broadcast_to(x.astype(np.int8), (M, NS)).copy()  # noqa: E731
             ea, ev_, eja, ejv = b.run(_seg_events(prep, si, structure, up), bc(s_a), bc(s_v), f,
@@ -297,41 +303,45 @@ def rules_batch(prep, structure, kind_idx, params, bga, bgv, posa=None, posv=Non
 
 
 def _pair_counts_all(prep):
-    """counts[structure, ka, kv] over all ordered pairs of distinct cells."""
-    n, B, K = prep.n, prep.B, prep.K
-    H = np.zeros((n, K), dtype=np.int64)
-    np.add.at(H, (np.repeat(np.arange(n), B), prep.cell_key), 1)
-    Hs = H[prep.order].astype(np.float64)
-    P = np.cumsum(Hs, axis=0) - Hs
-    out = np.zeros((4, K, K), dtype=np.int64)
-    out[AFIRST] = np.rint(P.T @ Hs).astype(np.int64)
-    out[VFIRST] = np.rint(Hs.T @ P).astype(np.int64)
-    Hf = H.astype(np.float64)
-    same = np.rint(Hf.T @ Hf).astype(np.int64) - np.diag(H.sum(axis=0))
-    out[SAME] = same
-    return out
+    """counts[structure, ka, kv] (4, K, K) int64 over all ordered pairs of distinct cells."""
+    return prep.setup._pair_counts_all()
 
 
 def _pair_structure(prep, a, v):
-    wa, wv = a // prep.B, v // prep.B
-    ra, rv = prep.rank[wa], prep.rank[wv]
-    return np.where(wa == wv, SAME, np.where(ra < rv, AFIRST, VFIRST))
+    """(m,) int64 structure of explicit cell pairs ``a``, ``v`` (m,) int64."""
+    return prep.setup.pair_structure(a, v)
 
 
 def _pair_counts_explicit(prep, a, v):
-    K = prep.K
-    s = _pair_structure(prep, a, v)
-    key = (s * K + prep.cell_key[a]) * K + prep.cell_key[v]
-    return np.bincount(key, minlength=4 * K * K).reshape(4, K, K)
+    """counts[structure, ka, kv] (4, K, K) int64 over explicit cell pairs."""
+    return prep.setup.pair_counts_explicit(a, v)
 
 
+class KeySpace(NamedTuple):
+    """Cell keys one verdict table is indexed by: ``cell_key`` (n·B,), ``key_bits`` (K, R)
+    int8 background bits per key, ``key_pos`` (K,) int8 word position per key (all 0 unless
+    ``positional``), ``K``."""
+
+    cell_key: np.ndarray
+    key_bits: np.ndarray
+    key_pos: np.ndarray
+    K: int
+    positional: bool
 
 
 class RulesFast(FastPath):
-    def _rules_tables(self, eng, kinds):
-        """verdict tables: {structure: (det[kind, ka, kv], event[kind, ka, kv], events)}."""
+    def prepare(self, eng, kinds, scope):
+        eng.prep.setup.word_key_hist()
+        if any(k.arity == 2 for k in kinds):
+            eng.prep.setup.pair_counts(scope)
+
+    def _rules_tables(self, eng, kinds, ks):
+        """Verdict tables ``{structure: (det, event, events)}``: ``det`` (M kinds, K, K) bool and
+        ``event`` (M, K, K) int64 (index into ``events``, the canonical event list, or -1) per
+        (kind, aggressor key, victim key); only the keys present in ``eng.scratch['present']``
+        ((K, K) bool per structure) are simulated."""
         prep = eng.prep
-        K = prep.K
+        K = ks.K
         params = _rule_params(kinds)
         tables = {}
         for structure in (SINGLE, AFIRST, VFIRST, SAME):
@@ -352,34 +362,70 @@ class RulesFast(FastPath):
             det = np.zeros((len(kinds), K, K), dtype=bool)
             evt = np.full((len(kinds), K, K), -1, dtype=np.int64)
             events = []
-            dyn = np.array([kinds[j].is_dynamic for j in range(len(kinds))], dtype=bool)
-            # dynamic kinds carry more state through ⇕ elements: batch them apart
-            for part in (dyn[kk], ~dyn[kk]):
-                if not part.any():
-                    continue
-                k2, a2, v2 = kk[part], ka[part], kv[part]
-                d, e, events = rules_batch(prep, structure, k2, params, prep.key_bits[a2], prep.key_bits[v2],
-                                           prep.key_pos[a2], prep.key_pos[v2])
-                det[k2, a2, v2] = d
-                evt[k2, a2, v2] = e
+            if kk.size:
+                d, e, events = rules_batch(prep, structure, kk, params, ks.key_bits[ka], ks.key_bits[kv],
+                                           ks.key_pos[ka], ks.key_pos[kv])
+                det[kk, ka, kv] = d
+                evt[kk, ka, kv] = e
             tables[structure] = (det, evt, events)
         return tables
 
-    def grade(self, eng, kinds, scope, results):
+    def _keyspaces(self, eng, kinds):
+        """(KeySpace, kinds) parts: the static kinds on the memory set-up's cell keys
+        (background bits); the dynamic kinds on keys that add the word's position in the order
+        (:meth:`Prepared.dyn_keys`), since elements meet back to back on the first/last word."""
         prep = eng.prep
-        K = prep.K
-        single_counts = np.bincount(prep.cell_key, minlength=K)
-        pairs = None
+        out = []
+        stat = [k for k in kinds if not k.is_dynamic]
+        dyn = [k for k in kinds if k.is_dynamic]
+        if stat:
+            out.append((KeySpace(prep.cell_key, prep.key_bits, np.zeros(prep.K, dtype=np.int8), prep.K, False), stat))
+        if dyn:
+            out.append((KeySpace(*prep.dyn_keys(), True), dyn))
+        return out
+
+    def _pair_counts(self, prep, ks, scope):
+        """counts[structure, ka, kv] (4, K, K) over the scope's pairs in keyspace ``ks``."""
+        if not ks.positional:
+            return prep.setup.pair_counts(scope)
+        K = ks.K
+        if scope.is_all:
+            n, B = prep.n, prep.B
+            H = np.zeros((n, K), dtype=np.int64)
+            np.add.at(H, (np.repeat(np.arange(n), B), ks.cell_key), 1)
+            Hs = H[prep.order].astype(np.float64)
+            P = np.cumsum(Hs, axis=0) - Hs
+            out = np.zeros((4, K, K), dtype=np.int64)
+            out[AFIRST] = np.rint(P.T @ Hs).astype(np.int64)
+            out[VFIRST] = np.rint(Hs.T @ P).astype(np.int64)
+            Hf = H.astype(np.float64)
+            out[SAME] = np.rint(Hf.T @ Hf).astype(np.int64) - np.diag(H.sum(axis=0))
+            return out
+        out = np.zeros(4 * K * K, dtype=np.int64)
+        for a, v in prep.setup.cell_pair_chunks(scope):
+            st = _pair_structure(prep, a, v).astype(np.int64)
+            out += np.bincount((st * K + ks.cell_key[a]) * K + ks.cell_key[v], minlength=4 * K * K)
+        return out.reshape(4, K, K)
+
+    def grade(self, eng, kinds, scope, results):
+        for ks, part in self._keyspaces(eng, kinds):
+            self._grade_part(eng, part, scope, results, ks)
+        return results
+
+    def _grade_part(self, eng, kinds, scope, results, ks):
+        prep = eng.prep
+        K = ks.K
+        single_counts = np.bincount(ks.cell_key, minlength=K) if ks.positional else \
+            prep.setup.word_key_hist().sum(axis=0)
         if any(k.arity == 2 for k in kinds):
-            pairs = cell_pairs(prep.mem, scope)
-            pc = _pair_counts_all(prep) if pairs is None else _pair_counts_explicit(prep, *pairs)
+            pc = self._pair_counts(prep, ks, scope)
         else:
             pc = np.zeros((4, K, K), dtype=np.int64)
         eng.scratch["present"] = {SINGLE: np.zeros((K, K), dtype=bool)}
         eng.scratch["present"][SINGLE][0, :] = single_counts > 0
         for s in (AFIRST, VFIRST, SAME):
             eng.scratch["present"][s] = pc[s] > 0
-        tables = self._rules_tables(eng, kinds)
+        tables = self._rules_tables(eng, kinds, ks)
         for j, kind in enumerate(kinds):
             res = results.setdefault(kind.text, KindResult(kind))
             structs = (SINGLE,) if kind.arity == 1 else (AFIRST, VFIRST, SAME)
@@ -399,22 +445,26 @@ class RulesFast(FastPath):
                     if eng.examples:
                         for ka, kv in zip(*np.nonzero((counts > 0) & ~det[j])):
                             eng.take(res, [Instance(kind, c) for c in
-                                             self._cells_with_key(eng, s, int(ka), int(kv), pairs, eng.examples)])
+                                             self._cells_with_key(eng, s, int(ka), int(kv), scope, eng.examples,
+                                                                  ks.cell_key)])
                 for e in np.unique(evt[j][(counts > 0) & det[j]]):
                     res.merge_element(prep.sched.segments[events[e][0]].element)
         return results
 
-    def _cells_with_key(self, eng, s, ka, kv, pairs, limit):
-        """Up to ``limit`` cell tuples whose key is (structure s, ka, kv)."""
+    def _cells_with_key(self, eng, s, ka, kv, scope, limit, ck):
+        """Up to ``limit`` cell tuples whose key (cell keys ``ck``) is (structure s, ka, kv)."""
         prep = eng.prep
-        ck = prep.cell_key
         if s == SINGLE:
             return [(int(c),) for c in np.nonzero(ck == kv)[0][:limit]]
-        if pairs is not None:
-            a, v = pairs
-            m = (_pair_structure(prep, a, v) == s) & (ck[a] == ka) & (ck[v] == kv)
-            idx = np.nonzero(m)[0][:limit]
-            return [(int(a[i]), int(v[i])) for i in idx]
+        if not scope.is_all:
+            out: dict = {}
+            for a, v in prep.setup.cell_pair_chunks(scope):
+                m = (_pair_structure(prep, a, v) == s) & (ck[a] == ka) & (ck[v] == kv)
+                for i in np.nonzero(m)[0][:limit]:
+                    out.setdefault((int(a[i]), int(v[i])), None)
+                if len(out) >= limit:
+                    break
+            return list(out)[:limit]
         B = prep.B
         cells = np.arange(prep.n * B)
         crank = prep.rank[cells // B]
@@ -443,26 +493,36 @@ class RulesFast(FastPath):
     # ---- AF -------------------------------------------------------------------------
 
     def verdicts(self, eng, instances):
+        out = [None] * len(instances)
+        for ks, part in self._keyspaces(eng, list({i.kind.text: i.kind for i in instances}.values())):
+            names = {k.text for k in part}
+            idx = [i for i, inst in enumerate(instances) if inst.kind.text in names]
+            for i, v in zip(idx, self._verdicts_part(eng, [instances[i] for i in idx], ks)):
+                out[i] = v
+        return out
+
+    def _verdicts_part(self, eng, instances, ks):
         prep = eng.prep
         out = [None] * len(instances)
         kinds = list({inst.kind.text: inst.kind for inst in instances}.values())
         kidx = {k.text: j for j, k in enumerate(kinds)}
         keyed = []
-        K = prep.K
+        K = ks.K
+        ck = ks.cell_key
         eng.scratch["present"] = {st: np.zeros((K, K), dtype=bool) for st in STRUCTURES}
         for i, inst in enumerate(instances):
             if inst.kind.arity == 1:
                 c = inst.sites[0]
-                s, ka, kv = SINGLE, 0, int(prep.cell_key[c])
+                s, ka, kv = SINGLE, 0, int(ck[c])
                 aword = vword = c // prep.B
             else:
                 a, v = inst.sites
                 s = int(_pair_structure(prep, np.array([a]), np.array([v]))[0])
-                ka, kv = int(prep.cell_key[a]), int(prep.cell_key[v])
+                ka, kv = int(ck[a]), int(ck[v])
                 aword, vword = a // prep.B, v // prep.B
             eng.scratch["present"][s][ka, kv] = True   # simulate only the keys asked about
             keyed.append((i, s, ka, kv, aword, vword))
-        tables = self._rules_tables(eng, kinds)
+        tables = self._rules_tables(eng, kinds, ks)
         for i, s, ka, kv, aword, vword in keyed:
             j = kidx[instances[i].kind.text]
             det, evt, events = tables[s]

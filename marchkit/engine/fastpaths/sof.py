@@ -13,26 +13,11 @@ from .base import FastPath
 
 
 class StuckOpenFast(FastPath):
-    def _sof_keys(self, eng, cells):
-        prep = eng.prep
-        n, B, R = prep.n, prep.B, prep.R
-        w, b = cells // B, cells % B
-        r = prep.rank[w]
-        first, last = prep.order[0], prep.order[-1]
-        pred = prep.order[np.maximum(r - 1, 0)]
-        succ = prep.order[np.minimum(r + 1, n - 1)]
-        flags = (r == 0).astype(np.int64) | (r == 1) << 1 | (r == n - 2) << 2 | (r == n - 1) << 3
-        cols = [prep.bg[run, ctxw, b].astype(np.int64)
-                for ctxw in (np.full_like(w, first), pred, w, succ, np.full_like(w, last))
-                for run in range(R)]
-        if len(cols) <= 58:        # pack into one int64
-            key = flags
-            for c in cols:
-                key = key << 1 | c
-        else:                      # very many background runs: number the distinct rows
-            _, key = np.unique(np.stack([flags] + cols, axis=1), axis=0, return_inverse=True)
-            key = key.ravel().astype(np.int64)
-        return key
+    """Keys from ``prep.setup.sof_keys()``: count (U,) int64 and representative cell (U,)
+    int64 per key; one oracle run on the projected words per key and kind."""
+
+    def prepare(self, eng, kinds, scope):
+        eng.prep.setup.sof_keys()
 
     def _sof_verdict(self, eng, kind, cell):
         prep = eng.prep
@@ -48,20 +33,18 @@ class StuckOpenFast(FastPath):
 
     def grade(self, eng, kinds, scope, results):
         prep = eng.prep
-        cells = np.arange(prep.n * prep.B, dtype=np.int64)
-        key = self._sof_keys(eng, cells)
-        uk, first_idx, counts = np.unique(key, return_index=True, return_counts=True)
+        counts, first_idx = prep.setup.sof_keys()
         for kind in kinds:
             res = results.setdefault(kind.text, KindResult(kind))
             for i, c in zip(first_idx, counts):
-                det, ev = self._sof_verdict(eng, kind, int(cells[i]))
+                det, ev = self._sof_verdict(eng, kind, int(i))
                 res.instances += int(c)
                 if det:
                     res.detected += int(c)
                     res.merge_element(prep.sched.segments[ev.seg].element)
                 else:
                     res.missed_structures.add("single")
-                    eng.take(res, [Instance(kind, (int(cells[i]),))])
+                    eng.take(res, [Instance(kind, (int(i),))])
         return results
 
     def verdicts(self, eng, instances):
