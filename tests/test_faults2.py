@@ -290,3 +290,24 @@ def test_intra_word_transition_coupling_hint_is_what_detects_them():
     bgs = SAME_WORD_TRANSITION.split("--backgrounds ")[-1]
     fixed = grade(t, make_memory(8, 4, backgrounds=bgs), "CFid,CFin", "word")
     assert fixed.total.coverage == 1.0
+
+
+@pytest.mark.parametrize("kw", [dict(words=6, bits=2, order="gray", backgrounds="solid,checkerboard"),
+                                dict(words=8, bits=1, order="random:4"),
+                                dict(words=4, bits=3, mux=2, backgrounds="word")])
+def test_lf3_all_triples_closed_form_equals_listing(kw, monkeypatch):
+    # --pairs all on large arrays counts LF3 triples per key in closed form (prefix sums over
+    # the order); on small arrays they are listed.  Both must give the same grade (derived).
+    from marchkit.engine.fastpaths import group_rules
+
+    mem = make_memory(**kw)
+    sel = FaultSelection(tuple(LF3[::7]), "x")
+    for name in ("March C-", "March AB"):
+        t = find_in_library(name)
+        listed = Engine(t, mem).grade(sel, ALL)
+        monkeypatch.setattr(group_rules, "MAX_LISTED_TRIPLES", 0)
+        closed = Engine(t, mem).grade(sel, ALL)
+        monkeypatch.undo()
+        for a, b in zip(listed, closed):
+            assert (a.instances, a.detected, a.complete_by, a.missed_structures) == \
+                   (b.instances, b.detected, b.complete_by, b.missed_structures), a.kind.text

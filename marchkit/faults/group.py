@@ -265,6 +265,22 @@ def lf3_triple_chunks(mem, scope):
         yield key // (n * n), (key // n) % n, key % n
 
 
+def check_triples(kinds, mem, scope) -> None:
+    """Refuse, before any work, an LF3 selection whose ``all`` scope has too many triples."""
+    from ..errors import EngineLimitError
+
+    from ..model import background_names
+
+    n = mem.cells
+    listed = len(scope.parts) > 1 or len(background_names(mem)) > 4   # else counted in closed form
+    if (any(k.cls == "LF3" for k in kinds) and ("all",) in scope.parts and listed
+            and n * (n - 1) * (n - 2) > MAX_TRIPLES):
+        raise EngineLimitError(
+            f"{n:,} cells have {n * (n - 1) * (n - 2):,} ordered cell triples for LF3, more than "
+            f"marchkit lists ({MAX_TRIPLES:,}); use --pairs neighbours (LF3 aggressors are realistic "
+            "next to the victim), word or sample:K, or leave LF3 out of --faults")
+
+
 def lf3_count(mem, scope) -> int:
     parts = scope.parts
     n, B = mem.cells, mem.bits

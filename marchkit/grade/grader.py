@@ -143,6 +143,9 @@ def grade(test, mem, faults="static", pairs="neighbours", retention=None, engine
     ensure_consistent(test)
     selection = select_faults(faults, retention or DEFAULT_RETENTION) if isinstance(faults, str) else faults
     scope = parse_pairs(pairs) if isinstance(pairs, str) else pairs
+    from ..faults.group import check_triples
+
+    check_triples(selection.kinds, mem, scope)        # limits before work
     sched = schedule(test, mem)
     t0 = time.perf_counter()
     kinds = grade_kinds(test, mem, selection, scope, engine, sched, progress, examples)

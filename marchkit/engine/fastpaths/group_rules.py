@@ -30,6 +30,7 @@ from ..results import KindResult
 from .base import FastPath
 
 _OPC = {"w": 1, "r": 2}
+MAX_LISTED_TRIPLES = 2_000_000    # above this, --pairs all triples are counted in closed form
 
 
 def _params(kinds, k):
@@ -287,6 +288,63 @@ def _lf3_neighbour_counts(prep):
     return out
 
 
+def _lf3_all_counts(prep):
+    """Counts of every ordered triple of distinct cells (a1, a2, v) per key — the weak order
+    of the three words in ⇑ (13 cases) and the three cells' background bits — in closed form
+    from per-word histograms of the cells' background codes (prefix sums over the order), never
+    listing the n³ triples.  Returns {key: (count, (present, groups, bgbits))}."""
+    R = prep.R
+    if R > 4:
+        return None
+    G = 1 << R
+    n, B = prep.n, prep.B
+    bgc = (prep.bg.reshape(R, -1).astype(np.int64) << np.arange(R)[:, None]).sum(axis=0)
+    H = np.zeros((n, G), dtype=np.float64)
+    np.add.at(H, (np.repeat(np.arange(n), B), bgc), 1)
+    Hs = H[prep.order]
+    P = np.cumsum(Hs, axis=0) - Hs              # cells of earlier words
+    Sx = Hs.sum(axis=0)[None, :] - np.cumsum(Hs, axis=0)   # cells of later words
+    eye = np.eye(G)
+    W2 = Hs[:, :, None] * Hs[:, None, :] - eye[None] * Hs[:, :, None]      # two distinct cells of one word
+    W3 = (Hs[:, :, None, None] * Hs[:, None, :, None] * Hs[:, None, None, :]
+          - eye[None, :, :, None] * Hs[:, :, None, None] * Hs[:, None, None, :]
+          - eye[None, :, None, :] * Hs[:, :, None, None] * Hs[:, None, :, None]
+          - eye[None, None, :, :] * Hs[:, None, :, None] * Hs[:, :, None, None]
+          + 2 * (eye[:, :, None] * eye[:, None, :])[None] * Hs[:, :, None, None])
+    out: dict = {}
+    bits_of = ((np.arange(G)[:, None] >> np.arange(R)[None, :]) & 1).astype(np.int8)
+    import itertools
+
+    for ranks in itertools.product(range(3), repeat=3):
+        used = sorted(set(ranks))
+        if used != list(range(len(used))):
+            continue                             # dense ranks only: each weak order once
+        k = len(used)
+        # tensor T[g_a1, g_a2, g_v] of triple counts with this weak order
+        if k == 1:
+            T = W3.sum(axis=0)
+        elif k == 3:
+            order = sorted(range(3), key=lambda i: ranks[i])     # roles first, middle, last
+            T0 = np.einsum("ma,mb,mc->abc", P, Hs, Sx)
+            T = np.transpose(T0, np.argsort(order))
+        else:
+            pair = [i for i in range(3) if ranks.count(ranks[i]) == 2]
+            lone = [i for i in range(3) if ranks.count(ranks[i]) == 1][0]
+            side = P if ranks[lone] < ranks[pair[0]] else Sx
+            T0 = np.einsum("mab,mc->abc", W2, side)      # (pair[0], pair[1], lone)
+            T = np.transpose(T0, np.argsort(pair + [lone]))
+        T = np.rint(T).astype(np.int64)
+        groups = [[i for i in range(3) if ranks[i] == r] for r in used]
+        for g1, g2, gv in zip(*np.nonzero(T)):
+            sg = int(np.sign(ranks[0] - ranks[1]) + 1)
+            s1 = int(np.sign(ranks[0] - ranks[2]) + 1) * G + int(g1)
+            s2 = int(np.sign(ranks[1] - ranks[2]) + 1) * G + int(g2)
+            code = ((sg * 3 * G + s1) * 3 * G + s2) * G + int(gv)
+            bgbits = np.stack([bits_of[g1], bits_of[g2], bits_of[gv]])
+            out[code] = (int(T[g1, g2, gv]), (np.ones(3, dtype=bool), groups, bgbits))
+    return out
+
+
 def _chunks(prep, kinds, scope, npsf):
     from ...faults.group import lf3_triple_chunks, npsf_neighbourhoods
 
@@ -315,6 +373,15 @@ class GroupFast(FastPath):
                 for kk, (c, rep) in fastn.items():
                     counts[("n", kk)] = c
                     reps[("n", kk)] = rep
+            described = {}
+            n = prep.mem.cells
+            if (fastn is None and not npsf and scope.parts == (("all",),)
+                    and n * (n - 1) * (n - 2) > MAX_LISTED_TRIPLES):
+                fastn = _lf3_all_counts(prep)
+                if fastn is not None:
+                    for kk, (c, desc) in fastn.items():
+                        counts[("a", kk)] = c
+                        described[("a", kk)] = desc
             for tup in (() if fastn is not None else _chunks(prep, ks, scope, npsf)):
                 if tup.size == 0:
                     continue
@@ -329,7 +396,10 @@ class GroupFast(FastPath):
             P = _params(ks, len(roles(ks[0])))
             res = {kd.text: results.setdefault(kd.text, KindResult(kd)) for kd in ks}
             for kk, c in counts.items():
-                present, groups, bgbits = _describe_key(prep, reps[kk])
+                if kk in described:
+                    present, groups, bgbits = described[kk]
+                else:
+                    present, groups, bgbits = _describe_key(prep, reps[kk])
                 det, ev, events = group_batch(prep, P, present, groups, bgbits)
                 for j, kd in enumerate(ks):
                     if npsf and not npsf_applies(kd, present[1:]):
@@ -339,6 +409,10 @@ class GroupFast(FastPath):
                     if det[j]:
                         r.detected += c
                         r.merge_element(prep.sched.segments[events[ev[j]][0]].element)
+                    elif kk in described:           # closed-form count: name the structure only
+                        names = ("a1", "a2", "v")
+                        r.missed_structures.add(" < ".join(" = ".join(names[i] for i in g) for g in groups)
+                                                if len(groups) > 1 else "same word")
                     else:
                         inst = Instance(kd, tuple(int(x) for x in reps[kk]))
                         r.missed_structures.add(family_of(kd).structure(inst, prep.mem, rank))
