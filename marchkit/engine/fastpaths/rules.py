@@ -402,7 +402,19 @@ class RulesFast(FastPath):
             out[SAME] = np.rint(Hf.T @ Hf).astype(np.int64) - np.diag(H.sum(axis=0))
             return out
         out = np.zeros(4 * K * K, dtype=np.int64)
-        for a, v in prep.setup.cell_pair_chunks(scope):
+        if {p[0] for p in scope.parts} == {"neighbours", "word"}:
+            # the word part has every same-word pair: take the neighbour pairs across words only
+            from ...faults import parse_pairs
+
+            def chunks():
+                for a, v in prep.setup.neighbour_cell_pair_chunks():
+                    keep = a // prep.B != v // prep.B
+                    yield a[keep], v[keep]
+                yield from prep.setup.cell_pair_chunks(parse_pairs("word"))
+        else:
+            def chunks():
+                yield from prep.setup.cell_pair_chunks(scope)
+        for a, v in chunks():
             st = _pair_structure(prep, a, v).astype(np.int64)
             out += np.bincount((st * K + ks.cell_key[a]) * K + ks.cell_key[v], minlength=4 * K * K)
         return out.reshape(4, K, K)
