@@ -83,6 +83,14 @@ class Prepared:
             p -= 1
         return p
 
+    @property
+    def scenarios(self) -> list:
+        """Every choice of orders for the ⇕ elements (2^k tuples of flags).  Exponential: kept
+        for fast paths written before :func:`sweep_orders`; new code should use that."""
+        import itertools
+
+        return list(itertools.product((True, False), repeat=len(self.any_elems)))
+
     def seg_up(self, si, any_up=None) -> bool:
         """Whether segment ``si`` runs ⇑: ⇕ as ⇑ unless ``any_up`` (a flag per ⇕ element)."""
         seg = self.sched.segments[si]
