@@ -16,6 +16,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from marchkit.errors import FaultSpecError
+from marchkit.faults import NPSF_CLASSES
 from marchkit.faults import (
     AF,
     CFID,
@@ -228,9 +229,10 @@ def test_select_sets():
     assert _texts("retention") == ["DRF0(τ=1ms)", "DRF1(τ=1ms)"]
     assert DEFAULT_RETENTION == (Fraction(1, 1000),)
     everything = select_faults("all")
-    # + the 30 single-cell dynamic primitives (Al-Ars 2005, counted in Di Carlo & Prinetto 2010;
-    # fact sheet)
-    assert len(everything.kinds) == 48 + 2 + 1 + 4 + 2 + 4 + 2 + 30
+    # + the 30 single-cell dynamic primitives (Al-Ars 2005, counted in Di Carlo & Prinetto 2010)
+    # + the 96 two-cell ones (192 with both orientations; Al-Ars & van de Goor, from memory)
+    # + 876 linked kinds (derived in marchkit.faults.linked) + 192 type-1 NPSF kinds
+    assert len(everything.kinds) == 48 + 2 + 1 + 4 + 2 + 4 + 2 + 30 + 96 + 876 + 192
     assert len(set(_texts("all"))) == len(everything.kinds)
     assert [k.text for k in all_kinds()] == _texts("all")
 
@@ -423,7 +425,9 @@ def test_enumerate_matches_count(geo, spec):
         limit = mem.words if kind.family == "af" else mem.cells
         for s in sites:
             assert len(s) == kind.arity
-            assert all(0 <= x < limit for x in s)
+            # an NPSF neighbour cut off by the array's edge is -1
+            assert all(0 <= x < limit or (kind.cls in NPSF_CLASSES and x == -1) for x in s)
+            assert len({x for x in s if x >= 0}) == len([x for x in s if x >= 0])
             if len(s) == 2:
                 assert s[0] != s[1]
         assert all(i.kind is kind for i in insts)
@@ -465,4 +469,4 @@ def test_dynamic_class_names_do_not_shadow_static_ones():
     assert select_faults("dRDF").classes == ("dRDF",)
     assert select_faults("DRDF").classes == select_faults("drdf").classes == ("DRDF",)
     assert select_faults("ddrdf").classes == ("dDRDF",)
-    assert len(select_faults("dynamic").kinds) == 30
+    assert len(select_faults("dynamic").kinds) == 30 + 96

@@ -41,6 +41,8 @@ PUBLISHED = [
     ("IFA-13", 16, 2),    # same paper: from memory
     ("March G", 23, 2),   # van de Goor 1991: from memory
     ("March LA", 22, 0),  # van de Goor, Gaydadjiev, Mikitjuk, Yarmolik, ATS 1998: from memory (abstract names it, no length)
+    ("March SL", 41, 0),  # Hamdioui, Al-Ars, van de Goor, Rodgers, IEEE TCAD 23(5) 2004: from memory (41n)
+    ("March RAW1", 13, 0),  # Hamdioui, Al-Ars, van de Goor, VTS 2002: from memory (13n)
 ]
 
 # Notations read in outside sources, to compare the library's element sequences with.

@@ -19,7 +19,7 @@ def register(sub):
     add_fault_options(p)
     g = p.add_argument_group("output")
     g.add_argument("--json", action="store_true", help="print the result as JSON")
-    g.add_argument("--primitives", action="store_true", help="also list every static fault primitive")
+    g.add_argument("--primitives", action="store_true", help="also list every fault kind graded (each primitive, model, linked or neighbourhood fault)")
     g.add_argument("--missed", type=int, default=0, metavar="N",
                    help="name up to N undetected instances of each fault kind (cells as wWORD or wWORD.bBIT)")
     g.add_argument("--report", metavar="FILE.html", help="write a self-contained HTML report")
@@ -155,8 +155,8 @@ def show_result(res, con, primitives=False) -> None:
     if res.empty_classes:
         con.print(f"no instances in this pair scope: {', '.join(res.empty_classes)}")
     if primitives and res.primitives:
-        pt = Table(title="static fault primitives", title_justify="left", show_edge=False, pad_edge=False)
-        for col in ("primitive", "class", "instances", "detected", "why some are missed"):
+        pt = Table(title="fault kinds", title_justify="left", show_edge=False, pad_edge=False)
+        for col in ("kind", "class", "instances", "detected", "why some are missed"):
             pt.add_column(col, justify="right" if col in ("instances", "detected") else "left")
         for p in res.primitives:
             pt.add_row(p.fault, p.cls, f"{p.instances:,}", f"{p.detected:,}", p.reason)

@@ -49,6 +49,39 @@ class Prepared:
         self.key_bits, self.cell_key, self.K = ms.key_bits, ms.cell_key, ms.K
         self.determined = determined_reads(self.sched)
         self.any_elems = [i for i, e in enumerate(test.elements) if e.order == "any"]
+        self._dyn = None
+
+    def dyn_keys(self):
+        """Cell keys for dynamic faults: (cell_key (n·B,) int64, key_bits (K', R) int8, key_pos
+        (K',) int8, K').  A key is the cell's background bits (one per run) *and* its word's
+        position in the ⇑ order (1 first, 2 last, 0 any other): the last operation of an
+        element and the first of the next are back to back on the first or last word, so a
+        dynamic fault's verdict depends on that position too."""
+        if self._dyn is None:
+            pos = np.zeros(self.n, dtype=np.int64)
+            pos[self.order[0]] = 1
+            pos[self.order[-1]] = 2
+            ext = np.repeat(pos, self.B) * self.K + self.cell_key.astype(np.int64)
+            uniq, inv = np.unique(ext, return_inverse=True)
+            self._dyn = (inv.ravel().astype(np.int64), self.key_bits[uniq % self.K],
+                         (uniq // self.K).astype(np.int8), int(uniq.size))
+        return self._dyn
+
+    def joined(self, si) -> bool:
+        """Whether element segment ``si`` starts in the cycle the previous element segment
+        ends (no pause between): then their meeting word's last and first operations are back
+        to back."""
+        segs = self.sched.segments
+        p = si - 1
+        while p >= 0 and segs[p].element is None:
+            p -= 1
+        return p >= 0 and segs[si].start == segs[p].start + segs[p].cycles
+
+    def prev_element(self, si) -> int:
+        p = si - 1
+        while self.sched.segments[p].element is None:
+            p -= 1
+        return p
 
     @property
     def scenarios(self) -> list:

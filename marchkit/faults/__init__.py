@@ -10,6 +10,9 @@ from .family import Family, order_pattern, pattern_name
 from .primitives import (CFID, CFIN, CFST, CLASSIC_CLASSES, COUPLING_CLASSES, DYNAMIC,
                          DYNAMIC_CLASSES, SAF, SINGLE_CLASSES, STATIC, STATIC_CLASSES, TF, Cond,
                          FaultKind, Rule, parse_rule, primitive)
+from .group import LF3, NPSF, NPSF_CLASSES, GRule
+from .linked import LF1, LF2AA, LF2AV, LF2VA, LINKED_CLASSES, LINKED_RULES
+from .primitives import DYNAMIC2, DYNAMIC2_CLASSES
 from .registry import FAMILIES, class_family, family, family_of
 from .retention import drf_kinds
 from .stuck_open import SOF
@@ -20,5 +23,7 @@ __all__ = [
     "word_pairs", "cell_pair_count", "word_pair_count", "AF", "CFID", "DYNAMIC", "DYNAMIC_CLASSES", "CFIN", "CFST", "CLASSIC_CLASSES",
     "COUPLING_CLASSES", "SAF", "SINGLE_CLASSES", "SOF", "STATIC", "STATIC_CLASSES", "TF", "Cond",
     "FaultKind", "Rule", "drf_kinds", "parse_rule", "primitive", "FAMILIES", "Family", "family",
-    "family_of", "class_family", "order_pattern", "pattern_name",
+    "family_of", "class_family", "order_pattern", "pattern_name", "LF1", "LF2AA", "LF2AV", "LF2VA",
+    "LF3", "LINKED_CLASSES", "LINKED_RULES", "NPSF", "NPSF_CLASSES", "GRule", "DYNAMIC2",
+    "DYNAMIC2_CLASSES",
 ]

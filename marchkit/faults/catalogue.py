@@ -1,7 +1,9 @@
 """Fault selections (``--faults``), pair scopes (``--pairs``) and the instances they give.
 
 Selections: ``static`` (the 48 primitives), ``classic`` (SAF, TF, SOF, AF, CFin, CFid,
-CFst), ``retention`` (DRF), ``dynamic`` (the 30 single-cell two-operation primitives), ``all``, any class name (``SAF``, ``CFds``, ``DRF`` …), one kind
+CFst), ``retention`` (DRF), ``dynamic`` (the 30 single-cell and 96 two-cell two-operation
+primitives), ``linked`` (LF1, LF2aa, LF2av, LF2va, LF3), ``npsf`` (ANPSF, PNPSF, SNPSF),
+``all``, any class name (``SAF``, ``CFds``, ``DRF`` …), one kind
 (``SA0``, ``AF:alias``) or one primitive in ``<S/F/R>`` form — combined as a comma list.
 
 Pair scopes, for the two-cell kinds (cells) and the two-address AF kinds (words):
@@ -26,7 +28,7 @@ from .registry import FAMILIES, family_of
 
 DEFAULT_RETENTION = (Fraction(1, 1000),)
 MAX_EXPLICIT_PAIRS = 48_000_000     # directed pairs listed as arrays (enumeration, mixed sampled scopes only)
-GROUP_WORDS = ("static", "classic", "retention", "dynamic", "all")
+GROUP_WORDS = ("static", "classic", "retention", "dynamic", "linked", "npsf", "all")
 
 
 def _group(word: str, retention) -> tuple[FaultKind, ...]:

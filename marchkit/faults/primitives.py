@@ -51,11 +51,22 @@ class Rule:
     then: Cond | None = None     # dynamic primitive: the second of two back-to-back operations
 
     @property
+    def then_on_agg(self) -> bool:
+        """A two-cell dynamic primitive whose two operations go to the aggressor (dCFds)."""
+        return self.then is not None and self.agg is not None and self.agg.op is not None
+
+    @property
     def text(self) -> str:
-        s = self.vic.text if self.agg is None else f"{self.agg.text};{self.vic.text}"
+        second = ""
         if self.then is not None:
             t = self.then
-            s += f"w{t.val}" if t.op == "w" else f"r{t.pre}"
+            second = f"w{t.val}" if t.op == "w" else f"r{t.pre}"
+        if self.agg is None:
+            s = self.vic.text + second
+        elif self.then_on_agg:
+            s = f"{self.agg.text}{second};{self.vic.text}"
+        else:
+            s = f"{self.agg.text};{self.vic.text}{second}"
         return f"<{s}/{self.f}/{'-' if self.r is None else self.r}>"
 
 
@@ -64,6 +75,21 @@ _FP_RE = re.compile(rf"^<(?:{_COND};)?{_COND}/([01])/([01-])>$")
 
 
 _DYN_RE = re.compile(r"^<([01])([wr])([01])([wr])([01])/([01])/([01-])>$")
+# two-cell dynamic: <x O1 O2; y/F/-> (both operations on the aggressor, dCFds) or
+# <x; y O1 O2/F/R> (aggressor state, both operations on the victim)
+_DYN_A_RE = re.compile(r"^<([01])([wr])([01])([wr])([01]);([01])/([01])/(-)>$")
+_DYN_V_RE = re.compile(r"^<([01]);([01])([wr])([01])([wr])([01])/([01])/([01-])>$")
+
+
+def _two_ops(text, x, o1, v1, o2, v2):
+    """The two back-to-back operations on a cell holding ``x``: (first Cond, second Cond)."""
+    x, v1, v2 = int(x), int(v1), int(v2)
+    if o1 == "r" and v1 != x:
+        raise FaultSpecError(f"{text!r}: the first read of a cell holding {x} is r{x}")
+    s = v1 if o1 == "w" else x
+    if o2 == "r" and v2 != s:
+        raise FaultSpecError(f"{text!r}: after {o1}{v1} the cell holds {s}, so the read is r{s}")
+    return Cond(x, o1, v1), Cond(s, o2, v2)
 
 
 def _parse_dynamic(text: str, m) -> Rule:
@@ -90,6 +116,24 @@ def parse_rule(text: str) -> Rule:
     dm = _DYN_RE.match(s)
     if dm:
         return _parse_dynamic(text, dm)
+    dm = _DYN_A_RE.match(s)
+    if dm:
+        x, o1, v1, o2, v2, y, f, _ = dm.groups()
+        first, second = _two_ops(text, x, o1, v1, o2, v2)
+        if int(f) == int(y):
+            raise FaultSpecError(f"{text!r}: F must differ from the victim's state {y}; that is no fault")
+        return Rule(Cond(int(y)), int(f), None, first, second)
+    dm = _DYN_V_RE.match(s)
+    if dm:
+        a, x, o1, v1, o2, v2, f, r = dm.groups()
+        first, second = _two_ops(text, x, o1, v1, o2, v2)
+        rr = None if r == "-" else int(r)
+        if (o2 == "r") != (rr is not None):
+            raise FaultSpecError(f"{text!r}: R is a value exactly when the second operation is a read, '-' otherwise")
+        good_f = second.val if o2 == "w" else second.pre
+        if int(f) == good_f and (rr is None or rr == second.pre):
+            raise FaultSpecError(f"{text!r}: F and R are what a fault-free cell gives; that is no fault")
+        return Rule(first, int(f), rr, Cond(int(a)), second)
     m = _FP_RE.match(s)
     if not m:
         raise FaultSpecError(f"{text!r} is not a fault primitive such as <0w1/0/-> or <1;0r0/1/1>")
@@ -146,6 +190,11 @@ class FaultKind:
         """True for the 48 static primitives (one rule, reported per primitive)."""
         return self.family == "rules" and len(self.rules) == 1 and self.cls in STATIC_CLASSES
 
+    @property
+    def is_dynamic(self) -> bool:
+        """True when some rule needs two back-to-back operations."""
+        return any(r.then is not None for r in self.rules)
+
 
 def _r(text):
     return parse_rule(text)
@@ -154,12 +203,15 @@ def _r(text):
 def _classify(rule: Rule) -> str:
     v, a = rule.vic, rule.agg
     if rule.then is not None:
+        if rule.then_on_agg:
+            return "dCFds"
         t = rule.then
+        pre = "dCF" if a is not None else "d"
         if t.op == "w":
-            return "dTF" if t.val != t.pre else "dWDF"
+            return pre + ("TF" if a is None else "tr") if t.val != t.pre else pre + ("WDF" if a is None else "wd")
         if rule.f != t.pre:
-            return "dRDF" if rule.r != t.pre else "dDRDF"
-        return "dIRF"
+            return pre + ("RDF" if a is None else "rd") if rule.r != t.pre else pre + ("DRDF" if a is None else "drd")
+        return pre + ("IRF" if a is None else "ir")
     if a is None:
         if v.op is None:
             return "SF"
@@ -237,7 +289,39 @@ def _dynamic_texts() -> list[str]:
 
 
 DYNAMIC = tuple(_primitive_kind(t) for t in _dynamic_texts())
-_BY_TEXT = {k.text: k for k in STATIC + DYNAMIC}
+
+DYNAMIC2_CLASSES = ("dCFds", "dCFtr", "dCFwd", "dCFrd", "dCFdrd", "dCFir")
+
+
+def _dynamic2_texts() -> list[str]:
+    """The two-cell two-operation primitives, derived: both operations go to one cell.
+
+    * on the aggressor (dCFds): a state x, two operations back to back (O1, O2 each w0, w1 or
+      a read: 2·3·3 = 18 sequences) with the victim in state y (2), which flips: 36;
+    * on the victim, the aggressor in state a (2): each of the 30 single-cell dynamic
+      primitives: 60 (dCFtr, dCFwd: 24 write-ended; dCFrd, dCFdrd, dCFir: 36 read-ended).
+
+    96 primitives; each occurs with the aggressor before and after the victim, 192 in all —
+    the published count (Al-Ars & van de Goor; Hamdioui, Al-Ars, van de Goor, VTS 2002, from
+    memory).  marchkit instances every two-cell kind on ordered (aggressor, victim) pairs,
+    so the orientation is in the instances and the kind list holds the 96."""
+    out = []
+    for x in (0, 1):
+        for o1 in ("w0", "w1", "r"):
+            first = o1 if o1[0] == "w" else f"r{x}"
+            s1 = int(o1[1]) if o1[0] == "w" else x
+            for o2 in ("w0", "w1", "r"):
+                second = o2 if o2[0] == "w" else f"r{s1}"
+                for y in (0, 1):
+                    out.append(f"<{x}{first}{second};{y}/{1 - y}/->")
+    for a in (0, 1):
+        for t in _dynamic_texts():
+            out.append(f"<{a};{t[1:]}")
+    return out
+
+
+DYNAMIC2 = tuple(_primitive_kind(t) for t in _dynamic2_texts())
+_BY_TEXT = {k.text: k for k in STATIC + DYNAMIC + DYNAMIC2}
 
 
 def primitive(text: str) -> FaultKind:
@@ -271,7 +355,8 @@ class RulesFamily(Family):
     """Kinds that are sets of fault primitives acting together (one or two cells)."""
 
     name = "rules"
-    classes = STATIC_CLASSES + ("SAF", "CFin", "CFid") + DYNAMIC_CLASSES
+    classes = (STATIC_CLASSES + ("SAF", "CFin", "CFid") + DYNAMIC_CLASSES + DYNAMIC2_CLASSES
+               + ("LF1", "LF2aa", "LF2av", "LF2va"))
     labels = ("aggressor", "victim")
     short_labels = ("a", "v")
     needs = {
@@ -291,11 +376,21 @@ class RulesFamily(Family):
         "SAF": "needs each cell read as 0 and as 1",
         "CFin": "needs each aggressor transition then a victim read, both positions",
         "CFid": "needs each aggressor transition, victim in each state, then a victim read",
-        "dRDF": "needs the primitive's two operations back to back in one element, the second a read",
+        "dRDF": "needs the primitive's two operations back to back (adjacent in one visit, or where two elements meet on an address), the second a read",
         "dDRDF": "needs the two operations back to back, then another read before the cell is rewritten",
-        "dIRF": "needs the primitive's two operations back to back in one element, the second a read",
+        "dIRF": "needs the primitive's two operations back to back (adjacent in one visit, or where two elements meet on an address), the second a read",
         "dTF": "needs the two operations back to back (ending in a transition write), then a read",
         "dWDF": "needs the two operations back to back (ending in a non-transition write), then a read",
+        "dCFds": "needs each pair of back-to-back aggressor operations, victim in each state, then a victim read",
+        "dCFtr": "needs back-to-back operations ending in a victim transition write, aggressor in each state, then a read",
+        "dCFwd": "needs back-to-back operations ending in a victim non-transition write, aggressor in each state, then a read",
+        "dCFrd": "needs back-to-back operations ending in a victim read, aggressor in each state",
+        "dCFdrd": "needs back-to-back operations ending in a victim read, then another read, aggressor in each state",
+        "dCFir": "needs back-to-back operations ending in a victim read, aggressor in each state",
+        "LF1": "needs the first primitive sensitised and read before the second can undo it",
+        "LF2aa": "needs the first primitive sensitised and the victim read before the second can undo it, both positions",
+        "LF2av": "needs the coupling primitive sensitised and the victim read before its own fault undoes it",
+        "LF2va": "needs the victim's own fault sensitised and read before the coupling primitive undoes it",
     }
     where = {
         "aggressor first": "missed with the aggressor first in ⇑",
@@ -304,22 +399,38 @@ class RulesFamily(Family):
     }
 
     def groups(self, retention):
+        from .linked import LINKED_RULES
+
         return {
             "static": [(0, STATIC)],
-            "dynamic": [(0, DYNAMIC)],
+            "dynamic": [(0, DYNAMIC), (1, DYNAMIC2)],
+            "linked": [(0, LINKED_RULES)],
             "classic": [(0, SAF), (1, TF), (4, CFIN), (5, CFID), (6, CFST)],
-            "all": [(0, STATIC), (1, SAF), (4, CFIN), (5, CFID), (7, DYNAMIC)],
+            "all": [(0, STATIC), (1, SAF), (4, CFIN), (5, CFID), (7, DYNAMIC), (8, DYNAMIC2),
+                    (11, LINKED_RULES)],
         }
 
     def class_kinds(self, cls, retention):
+        from .linked import LF1, LF2AA, LF2AV, LF2VA
+
         if cls in STATIC_CLASSES:
             return tuple(k for k in STATIC if k.cls == cls)
         if cls in DYNAMIC_CLASSES:
             return tuple(k for k in DYNAMIC if k.cls == cls)
-        return {"SAF": SAF, "CFin": CFIN, "CFid": CFID}[cls]
+        if cls in DYNAMIC2_CLASSES:
+            return tuple(k for k in DYNAMIC2 if k.cls == cls)
+        return {"SAF": SAF, "CFin": CFIN, "CFid": CFID, "LF1": LF1, "LF2aa": LF2AA, "LF2av": LF2AV,
+                "LF2va": LF2VA}[cls]
 
     def parse_kind(self, text):
         return primitive(text) if text.startswith("<") else None
+
+    def test_kinds(self, retention):
+        """Every static, classic and single-cell dynamic kind; a quarter of the two-cell
+        dynamic and a twelfth of the linked kinds (they are many; the draws rotate)."""
+        from .linked import LINKED_RULES
+
+        return STATIC + SAF + CFIN + CFID + DYNAMIC + DYNAMIC2[::4] + LINKED_RULES[::12]
 
     def init_values(self, kind):
         return kind.arity
@@ -327,7 +438,21 @@ class RulesFamily(Family):
     def describe(self, kind) -> str:
         if kind.description:
             return kind.description
-        if len(kind.rules) == 1 and kind.rules[0].then is not None:
+        if len(kind.rules) == 1 and kind.rules[0].then is not None and kind.rules[0].agg is not None:
+            r = kind.rules[0]
+            if r.then_on_agg:
+                o1, o2 = r.agg, r.then
+                first = f"w{o1.val}" if o1.op == "w" else f"r{o1.pre}"
+                second = f"w{o2.val}" if o2.op == "w" else f"r{o2.pre}"
+                return (f"{first} then at once {second} on the aggressor holding {o1.pre} turns the "
+                        f"victim from {r.vic.pre} to {r.f}")
+            o1, o2 = r.vic, r.then
+            first = f"w{o1.val}" if o1.op == "w" else f"r{o1.pre}"
+            second = f"w{o2.val}" if o2.op == "w" else f"r{o2.pre}"
+            out = (f"{first} then at once {second} on the victim holding {o1.pre}, the aggressor "
+                   f"holding {r.agg.pre}: the victim is left {r.f}")
+            return out + (f" and the read returns {r.r}" if r.r is not None else "")
+        if len(kind.rules) == 1 and kind.rules[0].then is not None and kind.rules[0].agg is None:
             r = kind.rules[0]
             o1, o2 = r.vic, r.then
             first = f"w{o1.val}" if o1.op == "w" else f"r{o1.pre}"

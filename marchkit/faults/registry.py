@@ -7,13 +7,15 @@ fault family").  The catalogue, the grader, the CLI and both engines find it her
 
 from __future__ import annotations
 
-from . import decoder, primitives, retention, stuck_open
+from . import decoder, group, primitives, retention, stuck_open
 
 FAMILIES = (
     primitives.FAMILY,
     stuck_open.FAMILY,
     decoder.FAMILY,
     retention.FAMILY,
+    group.LINKED3,
+    group.NPSF_FAMILY,
 )
 
 _BY_NAME = {f.name: f for f in FAMILIES}

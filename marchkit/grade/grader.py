@@ -143,6 +143,9 @@ def grade(test, mem, faults="static", pairs="neighbours", retention=None, engine
     ensure_consistent(test)
     selection = select_faults(faults, retention or DEFAULT_RETENTION) if isinstance(faults, str) else faults
     scope = parse_pairs(pairs) if isinstance(pairs, str) else pairs
+    from ..faults.group import check_triples
+
+    check_triples(selection.kinds, mem, scope)        # limits before work
     sched = schedule(test, mem)
     t0 = time.perf_counter()
     kinds = grade_kinds(test, mem, selection, scope, engine, sched, progress, examples)
@@ -168,7 +171,7 @@ def grade(test, mem, faults="static", pairs="neighbours", retention=None, engine
         PrimitiveRow(r.kind.text, r.kind.cls, r.instances, r.detected,
                      reason_for(r.kind.cls, r.missed_structures, partial=r.detected > 0, word_backgrounds=wbg)
                      if r.detected < r.instances else "")
-        for r in kinds if r.kind.is_primitive and r.instances
+        for r in kinds if r.instances
     ]
     n = sum(c.instances for c in classes)
     d = sum(c.detected for c in classes)

@@ -264,9 +264,9 @@ def html_report(result) -> str:
 
     # ---- primitives
     if prims:
-        a("<h2>Fault primitives</h2>")
+        a("<h2>Fault primitives and kinds</h2>")
         n_full = sum(p.detected == p.instances for p in prims)
-        a(f'<p class="note">{n_full} of {len(prims)} static fault primitives fully detected. '
+        a(f'<p class="note">{n_full} of {len(prims)} fault kinds (primitives, models, linked and neighbourhood faults) fully detected. '
           "Notation &lt;S/F/R&gt; of van de Goor &amp; Al-Ars (VTS 2000).</p>")
         a('<table class="primitives"><thead><tr><th>primitive</th><th>class</th><th class="num">instances</th>'
           '<th class="num">detected</th><th>coverage</th><th>why not all</th></tr></thead><tbody>')

@@ -10,6 +10,7 @@ explicit pairs).
 from __future__ import annotations
 
 import numpy as np
+from typing import NamedTuple
 
 
 from ...faults import Instance
@@ -30,12 +31,13 @@ def _rule_params(kinds):
     S = max(len(k.rules) for k in kinds)
     M = len(kinds)
     P = {name: np.zeros((S, M), dtype=np.int8) for name in
-         ("rt", "a_pre", "a_op", "a_val", "v_pre", "v_op", "v_val", "f", "r", "t_pre", "t_op", "t_val")}
+         ("rt", "a_pre", "a_op", "a_val", "v_pre", "v_op", "v_val", "f", "r", "t_pre", "t_op", "t_val",
+          "has_a")}
     for j, k in enumerate(kinds):
         for s, rule in enumerate(k.rules):
             a, v = rule.agg, rule.vic
             if rule.then is not None:
-                rt = 6
+                rt = 7 if rule.then_on_agg else 6
                 P["t_pre"][s, j] = rule.then.pre
                 P["t_op"][s, j] = _OPCODE[rule.then.op]
                 P["t_val"][s, j] = rule.then.val
@@ -49,6 +51,7 @@ def _rule_params(kinds):
                 rt = 5
             P["rt"][s, j] = rt
             if a is not None:
+                P["has_a"][s, j] = 1
                 P["a_pre"][s, j] = a.pre
                 P["a_op"][s, j] = _OPCODE[a.op]
                 P["a_val"][s, j] = a.val if a.val is not None else 0
@@ -91,14 +94,31 @@ class _Batch:
     cells' values for I scenarios at once.
     """
 
-    def __init__(self, prep, structure, kind_idx, params, bga, bgv):
+    def __init__(self, prep, structure, kind_idx, params, bga, bgv, posa=None, posv=None):
         self.prep = prep
         self.M = kind_idx.size
         self.S = params["rt"].shape[0]
         self.p = {name: arr[:, kind_idx][:, :, None] for name, arr in params.items()}
-        self.dynamic = bool((self.p["rt"] == 6).any())
+        self.dynamic = bool((self.p["rt"] >= 6).any())
         self.bga, self.bgv = bga, bgv
+        zero = np.zeros((self.M, 1), dtype=np.int8)
+        self.posa = zero if posa is None else posa[:, None]
+        self.posv = zero if posv is None else posv[:, None]
         self.two = structure != SINGLE
+
+    def _before(self, si, k, up, pos, join):
+        """The operation just before op ``k`` of segment ``si`` (run ``up``) on a cell whose
+        word sits at ``pos``: (kind, value, run, pre-value of the cell before it (M, I) or
+        None for "from the visit", mask of keys for which it is back to back or None)."""
+        prep = self.prep
+        seg = prep.sched.segments[si]
+        if k > 0:
+            return seg.op_kinds[k - 1], seg.op_values[k - 1], seg.run, None, None
+        if not prep.joined(si):
+            return None
+        ps = prep.sched.segments[prep.prev_element(si)]
+        start = 1 if up else 2
+        return ps.op_kinds[-1], ps.op_values[-1], ps.run, join - 1, (join > 0) & (pos == start)
 
     def apply_states(self, va, vv):
         p = self.p
@@ -109,15 +129,29 @@ class _Batch:
             vv = np.where(m1 | m5, p["f"][s], vv)
         return vv
 
-    def run(self, events, va, vv, first):
+    def run(self, events, va, vv, first, ups=None, ja=None, jv=None):
         """Apply ``events`` to states (va, vv) (M, I) int8; ``first`` (M, I) int64 gets the
-        index in ``events`` of each scenario's first detection (where still -1).  Returns
-        the states after the events."""
+        index in ``events`` of each scenario's first detection (where still -1).  ``ups``:
+        segment → whether it runs ⇑ (default: ⇕ as ⇑).  ``ja``/``jv`` (M, I): whether the
+        last operation before these events was on the aggressor's/victim's word, back to back
+        with what follows if that word starts the next element (0: no; 1 + the cell's value
+        before it).  Returns (va, vv, ja, jv) after the events."""
         prep, p, S = self.prep, self.p, self.S
         bga, bgv = self.bga, self.bgv
         shape = va.shape
-        last_pre_v = vv    # the victim's value before its previous operation in this visit
+        zero = np.zeros(shape, dtype=np.int8)
+        ja = zero if ja is None else ja
+        jv = zero if jv is None else jv
+        up_of = (lambda si: prep.seg_up(si)) if ups is None else ups
+        last_pre_v = vv    # each cell's value before its previous operation
+        last_pre_a = va
+        cur = None
         for ev, (si, role, k) in enumerate(events):
+            if si != cur:
+                if cur is not None:
+                    ja, jv = self._ends(cur, up_of(cur), last_pre_a, last_pre_v, ja, jv)
+                cur = si
+                up = up_of(si)
             seg = prep.sched.segments[si]
             kind = seg.op_kinds[k]
             code = _OPCODE[kind]
@@ -129,6 +163,8 @@ class _Batch:
             fired = np.zeros(shape, dtype=bool)
             fval = np.zeros(shape, dtype=np.int8)
             outv = pre_v if (kind == "r" and tv) else None
+            bv = self._before(si, k, up, self.posv, jv) if (self.dynamic and tv) else None
+            ba = self._before(si, k, up, self.posa, ja) if (self.dynamic and ta and self.two) else None
             for s in range(S):
                 rt = p["rt"][s]
                 fire = None
@@ -137,16 +173,20 @@ class _Batch:
                     if kind == "w":
                         opm = opm & (dv == p["v_val"][s])
                     mv = opm & ((rt == 2) | ((rt == 4) & (pre_a == p["a_pre"][s])))
-                    if self.dynamic and k > 0:
-                        # the previous operation of this visit (k-1) on the victim is the first
-                        pk = seg.op_kinds[k - 1]
-                        dprev = (bgv[:, seg.run] ^ seg.op_values[k - 1])[:, None]
-                        dm = ((rt == 6) & (p["v_op"][s] == _OPCODE[pk]) & (last_pre_v == p["v_pre"][s])
-                              & (p["t_op"][s] == code) & (pre_v == p["t_pre"][s]))
+                    if bv is not None:
+                        # the operation before, back to back on the victim, was O1
+                        pk, pval, prun, ppre, ok = bv
+                        ppre = last_pre_v if ppre is None else ppre
+                        dprev = (bgv[:, prun] ^ pval)[:, None]
+                        dm = ((rt == 6) & (p["v_op"][s] == _OPCODE[pk]) & (ppre == p["v_pre"][s])
+                              & (p["t_op"][s] == code) & (pre_v == p["t_pre"][s])
+                              & ((p["has_a"][s] == 0) | (pre_a == p["a_pre"][s])))
                         if pk == "w":
                             dm = dm & (dprev == p["v_val"][s])
                         if kind == "w":
                             dm = dm & (dv == p["t_val"][s])
+                        if ok is not None:
+                            dm = dm & ok
                         mv = mv | dm
                     fire = mv
                     if outv is not None:
@@ -155,6 +195,20 @@ class _Batch:
                     opm = (rt == 3) & (p["a_op"][s] == code) & (pre_a == p["a_pre"][s]) & (pre_v == p["v_pre"][s])
                     if kind == "w":
                         opm = opm & (da == p["a_val"][s])
+                    if ba is not None:
+                        # dCFds: the aggressor's two operations back to back
+                        pk, pval, prun, ppre, ok = ba
+                        ppre = last_pre_a if ppre is None else ppre
+                        daprev = (bga[:, prun] ^ pval)[:, None]
+                        dm = ((rt == 7) & (p["a_op"][s] == _OPCODE[pk]) & (ppre == p["a_pre"][s])
+                              & (p["t_op"][s] == code) & (pre_a == p["t_pre"][s]) & (pre_v == p["v_pre"][s]))
+                        if pk == "w":
+                            dm = dm & (daprev == p["a_val"][s])
+                        if kind == "w":
+                            dm = dm & (da == p["t_val"][s])
+                        if ok is not None:
+                            dm = dm & ok
+                        opm = opm | dm
                     fire = opm if fire is None else (fire | opm)
                 if fire is not None:
                     fired |= fire
@@ -166,26 +220,44 @@ class _Batch:
                     vv = np.broadcast_to(dv, shape).astype(np.int8)
             if tv:
                 last_pre_v = pre_v
+            if ta:
+                last_pre_a = pre_a
             vv = np.where(fired, fval, vv).astype(np.int8)
             vv = self.apply_states(va, vv)
             if outv is not None and (si, k) in prep.determined:
                 det = (outv != dv) & (first < 0)
                 first[det] = ev
-        return va, vv
+        if cur is not None:
+            ja, jv = self._ends(cur, up_of(cur), last_pre_a, last_pre_v, ja, jv)
+        return va, vv, ja, jv
+
+    def _ends(self, si, up, last_pre_a, last_pre_v, ja, jv):
+        """Join information after segment ``si``: a cell whose word the segment visits last
+        had its last operation just before the next segment starts."""
+        if not self.dynamic:
+            return ja, jv
+        end = 2 if up else 1
+        jv = np.where(self.posv == end, last_pre_v + 1, 0).astype(np.int8)
+        ja = np.where(self.posa == end, last_pre_a + 1, 0).astype(np.int8) if self.two else ja
+        return ja, jv
 
 
-def rules_batch(prep, structure, kind_idx, params, bga, bgv):
+def rules_batch(prep, structure, kind_idx, params, bga, bgv, posa=None, posv=None):
     """Simulate M keys at once.
 
     ``kind_idx`` (M,) int indexes the kinds in ``params``; ``bga``/``bgv`` (M, R) int8 are
-    the background bits of aggressor and victim.  Returns (detected (M,) bool, canonical
-    first event (M,) int64 as an index into the canonical event list or -1, that list).
+    the background bits of aggressor and victim, ``posa``/``posv`` (M,) the positions of
+    their words (0 inside, 1 first, 2 last of the ⇑ order).  Returns (detected (M,) bool,
+    canonical first event (M,) int64 as an index into the canonical event list or -1, that
+    list).
 
     The canonical scenario (⇕ run as ⇑) gives the first events; with ⇕ elements, detection
     for every choice of orders comes from :func:`~marchkit.engine.fast.sweep_orders` over
-    the 2 or 4 states of the key's cells — linear in the number of elements.
+    the states of the key's cells (their values and, for dynamic kinds, whether the last
+    operation of the element before was on their word and on which value) — linear in the
+    number of elements.
     """
-    b = _Batch(prep, structure, kind_idx, params, bga, bgv)
+    b = _Batch(prep, structure, kind_idx, params, bga, bgv, posa, posv)
     M = b.M
     two = b.two
     I = 4 if two else 2
@@ -193,7 +265,6 @@ def rules_batch(prep, structure, kind_idx, params, bga, bgv):
     init_v = np.array([0, 1, 0, 1] if two else [0, 1], dtype=np.int8)
     va = np.broadcast_to(init_a, (M, I)).copy()
     vv = b.apply_states(va, np.broadcast_to(init_v, (M, I)).copy())
-    start = (va.astype(np.intp) << 1 | vv) if two else vv.astype(np.intp)   # (M, I) state index
     events = _events(prep, structure)
     first = np.full((M, I), -1, dtype=np.int64)
     b.run(events, va.copy(), vv.copy(), first)
@@ -201,19 +272,30 @@ def rules_batch(prep, structure, kind_idx, params, bga, bgv):
     if prep.any_elems:
         from ..fast import sweep_orders
 
-        NS = I
-        sa = np.broadcast_to(init_a, (M, NS)).copy()    # state s: aggressor s >> 1, victim s & 1
-        sv = np.broadcast_to(init_v, (M, NS)).copy()
+        J = 3 if b.dynamic else 1          # join information per cell: none, 1 + value
+        NA = 2 if two else 1
+        NJA = J if two else 1
+        # state s = ((a · 2 + v) · NJA + ja) · J + jv
+        idx = np.arange(NA * 2 * NJA * J)
+        s_jv = idx % J
+        s_ja = (idx // J) % NJA
+        s_v = (idx // (J * NJA)) % 2
+        s_a = idx // (J * NJA * 2)
+        NS = idx.size
+
+        def enc(a, v, ja_, jv_):
+            return ((a.astype(np.intp) * 2 + v) * NJA + (ja_ if two else 0)) * J + (jv_ if b.dynamic else 0)
 
         def transition(si, up):
             """(end state (M, NS) intp, detected (M, NS) bool) of segment ``si`` from each state."""
             f = np.full((M, NS), -1, dtype=np.int64)
-            ea, ev_ = b.run(_seg_events(prep, si, structure, up), sa.copy(), sv.copy(), f)
-            end = (ea.astype(np.intp) << 1 | ev_) if two else ev_.astype(np.intp)
-            return end, f >= 0
+            bc = lambda x: np.broadcast_to(x.astype(np.int8), (M, NS)).copy()  # noqa: E731
+            ea, ev_, eja, ejv = b.run(_seg_events(prep, si, structure, up), bc(s_a), bc(s_v), f,
+                                      ups=lambda _si: up, ja=bc(s_ja), jv=bc(s_jv))
+            return enc(ea, ev_, eja, ejv), f >= 0
 
         reach = np.zeros((M, NS), dtype=bool)
-        reach[np.arange(M)[:, None], start] = True
+        reach[np.arange(M)[:, None], enc(va, vv, np.zeros_like(va), np.zeros_like(vv))] = True
         detected &= ~sweep_orders(prep, reach, transition)
     canon_first = first.max(axis=1)
     canon_first[~detected] = -1
@@ -235,19 +317,31 @@ def _pair_counts_explicit(prep, a, v):
     return prep.setup.pair_counts_explicit(a, v)
 
 
+class KeySpace(NamedTuple):
+    """Cell keys one verdict table is indexed by: ``cell_key`` (n·B,), ``key_bits`` (K, R)
+    int8 background bits per key, ``key_pos`` (K,) int8 word position per key (all 0 unless
+    ``positional``), ``K``."""
+
+    cell_key: np.ndarray
+    key_bits: np.ndarray
+    key_pos: np.ndarray
+    K: int
+    positional: bool
+
+
 class RulesFast(FastPath):
     def prepare(self, eng, kinds, scope):
         eng.prep.setup.word_key_hist()
         if any(k.arity == 2 for k in kinds):
             eng.prep.setup.pair_counts(scope)
 
-    def _rules_tables(self, eng, kinds):
+    def _rules_tables(self, eng, kinds, ks):
         """Verdict tables ``{structure: (det, event, events)}``: ``det`` (M kinds, K, K) bool and
         ``event`` (M, K, K) int64 (index into ``events``, the canonical event list, or -1) per
         (kind, aggressor key, victim key); only the keys present in ``eng.scratch['present']``
         ((K, K) bool per structure) are simulated."""
         prep = eng.prep
-        K = prep.K
+        K = ks.K
         params = _rule_params(kinds)
         tables = {}
         for structure in (SINGLE, AFIRST, VFIRST, SAME):
@@ -267,28 +361,83 @@ class RulesFast(FastPath):
                 kk, ka, kv = kk[keep], ka[keep], kv[keep]
             det = np.zeros((len(kinds), K, K), dtype=bool)
             evt = np.full((len(kinds), K, K), -1, dtype=np.int64)
+            events = []
             if kk.size:
-                d, e, events = rules_batch(prep, structure, kk, params, prep.key_bits[ka], prep.key_bits[kv])
+                d, e, events = rules_batch(prep, structure, kk, params, ks.key_bits[ka], ks.key_bits[kv],
+                                           ks.key_pos[ka], ks.key_pos[kv])
                 det[kk, ka, kv] = d
                 evt[kk, ka, kv] = e
-            else:
-                events = []
             tables[structure] = (det, evt, events)
         return tables
 
-    def grade(self, eng, kinds, scope, results):
+    def _keyspaces(self, eng, kinds):
+        """(KeySpace, kinds) parts: the static kinds on the memory set-up's cell keys
+        (background bits); the dynamic kinds on keys that add the word's position in the order
+        (:meth:`Prepared.dyn_keys`), since elements meet back to back on the first/last word."""
         prep = eng.prep
-        K = prep.K
-        single_counts = prep.setup.word_key_hist().sum(axis=0)
+        out = []
+        stat = [k for k in kinds if not k.is_dynamic]
+        dyn = [k for k in kinds if k.is_dynamic]
+        if stat:
+            out.append((KeySpace(prep.cell_key, prep.key_bits, np.zeros(prep.K, dtype=np.int8), prep.K, False), stat))
+        if dyn:
+            out.append((KeySpace(*prep.dyn_keys(), True), dyn))
+        return out
+
+    def _pair_counts(self, prep, ks, scope):
+        """counts[structure, ka, kv] (4, K, K) over the scope's pairs in keyspace ``ks``."""
+        if not ks.positional:
+            return prep.setup.pair_counts(scope)
+        K = ks.K
+        if scope.is_all:
+            n, B = prep.n, prep.B
+            H = np.zeros((n, K), dtype=np.int64)
+            np.add.at(H, (np.repeat(np.arange(n), B), ks.cell_key), 1)
+            Hs = H[prep.order].astype(np.float64)
+            P = np.cumsum(Hs, axis=0) - Hs
+            out = np.zeros((4, K, K), dtype=np.int64)
+            out[AFIRST] = np.rint(P.T @ Hs).astype(np.int64)
+            out[VFIRST] = np.rint(Hs.T @ P).astype(np.int64)
+            Hf = H.astype(np.float64)
+            out[SAME] = np.rint(Hf.T @ Hf).astype(np.int64) - np.diag(H.sum(axis=0))
+            return out
+        out = np.zeros(4 * K * K, dtype=np.int64)
+        if {p[0] for p in scope.parts} == {"neighbours", "word"}:
+            # the word part has every same-word pair: take the neighbour pairs across words only
+            from ...faults import parse_pairs
+
+            def chunks():
+                for a, v in prep.setup.neighbour_cell_pair_chunks():
+                    keep = a // prep.B != v // prep.B
+                    yield a[keep], v[keep]
+                yield from prep.setup.cell_pair_chunks(parse_pairs("word"))
+        else:
+            def chunks():
+                yield from prep.setup.cell_pair_chunks(scope)
+        for a, v in chunks():
+            st = _pair_structure(prep, a, v).astype(np.int64)
+            out += np.bincount((st * K + ks.cell_key[a]) * K + ks.cell_key[v], minlength=4 * K * K)
+        return out.reshape(4, K, K)
+
+    def grade(self, eng, kinds, scope, results):
+        for ks, part in self._keyspaces(eng, kinds):
+            self._grade_part(eng, part, scope, results, ks)
+        return results
+
+    def _grade_part(self, eng, kinds, scope, results, ks):
+        prep = eng.prep
+        K = ks.K
+        single_counts = np.bincount(ks.cell_key, minlength=K) if ks.positional else \
+            prep.setup.word_key_hist().sum(axis=0)
         if any(k.arity == 2 for k in kinds):
-            pc = prep.setup.pair_counts(scope)
+            pc = self._pair_counts(prep, ks, scope)
         else:
             pc = np.zeros((4, K, K), dtype=np.int64)
         eng.scratch["present"] = {SINGLE: np.zeros((K, K), dtype=bool)}
         eng.scratch["present"][SINGLE][0, :] = single_counts > 0
         for s in (AFIRST, VFIRST, SAME):
             eng.scratch["present"][s] = pc[s] > 0
-        tables = self._rules_tables(eng, kinds)
+        tables = self._rules_tables(eng, kinds, ks)
         for j, kind in enumerate(kinds):
             res = results.setdefault(kind.text, KindResult(kind))
             structs = (SINGLE,) if kind.arity == 1 else (AFIRST, VFIRST, SAME)
@@ -308,15 +457,15 @@ class RulesFast(FastPath):
                     if eng.examples:
                         for ka, kv in zip(*np.nonzero((counts > 0) & ~det[j])):
                             eng.take(res, [Instance(kind, c) for c in
-                                             self._cells_with_key(eng, s, int(ka), int(kv), scope, eng.examples)])
+                                             self._cells_with_key(eng, s, int(ka), int(kv), scope, eng.examples,
+                                                                  ks.cell_key)])
                 for e in np.unique(evt[j][(counts > 0) & det[j]]):
                     res.merge_element(prep.sched.segments[events[e][0]].element)
         return results
 
-    def _cells_with_key(self, eng, s, ka, kv, scope, limit):
-        """Up to ``limit`` cell tuples whose key is (structure s, ka, kv)."""
+    def _cells_with_key(self, eng, s, ka, kv, scope, limit, ck):
+        """Up to ``limit`` cell tuples whose key (cell keys ``ck``) is (structure s, ka, kv)."""
         prep = eng.prep
-        ck = prep.cell_key
         if s == SINGLE:
             return [(int(c),) for c in np.nonzero(ck == kv)[0][:limit]]
         if not scope.is_all:
@@ -356,26 +505,36 @@ class RulesFast(FastPath):
     # ---- AF -------------------------------------------------------------------------
 
     def verdicts(self, eng, instances):
+        out = [None] * len(instances)
+        for ks, part in self._keyspaces(eng, list({i.kind.text: i.kind for i in instances}.values())):
+            names = {k.text for k in part}
+            idx = [i for i, inst in enumerate(instances) if inst.kind.text in names]
+            for i, v in zip(idx, self._verdicts_part(eng, [instances[i] for i in idx], ks)):
+                out[i] = v
+        return out
+
+    def _verdicts_part(self, eng, instances, ks):
         prep = eng.prep
         out = [None] * len(instances)
         kinds = list({inst.kind.text: inst.kind for inst in instances}.values())
         kidx = {k.text: j for j, k in enumerate(kinds)}
         keyed = []
-        K = prep.K
+        K = ks.K
+        ck = ks.cell_key
         eng.scratch["present"] = {st: np.zeros((K, K), dtype=bool) for st in STRUCTURES}
         for i, inst in enumerate(instances):
             if inst.kind.arity == 1:
                 c = inst.sites[0]
-                s, ka, kv = SINGLE, 0, int(prep.cell_key[c])
+                s, ka, kv = SINGLE, 0, int(ck[c])
                 aword = vword = c // prep.B
             else:
                 a, v = inst.sites
                 s = int(_pair_structure(prep, np.array([a]), np.array([v]))[0])
-                ka, kv = int(prep.cell_key[a]), int(prep.cell_key[v])
+                ka, kv = int(ck[a]), int(ck[v])
                 aword, vword = a // prep.B, v // prep.B
             eng.scratch["present"][s][ka, kv] = True   # simulate only the keys asked about
             keyed.append((i, s, ka, kv, aword, vword))
-        tables = self._rules_tables(eng, kinds)
+        tables = self._rules_tables(eng, kinds, ks)
         for i, s, ka, kv, aword, vword in keyed:
             j = kidx[instances[i].kind.text]
             det, evt, events = tables[s]

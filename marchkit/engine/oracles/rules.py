@@ -4,8 +4,18 @@ and dynamic ``<x O1 O2/F/R>`` acting together on one or two cells.
 A primitive fires when its sensitising operation is applied while its state conditions hold
 (judged on the values before the operation); state-sensitised primitives act at the start and
 after every operation.  Inside one word a write is applied to all bits at once; a fault's
-effect overrides what the write put in the victim.  A dynamic primitive's O1 and O2 are
-adjacent operations of one visit of the victim's address.
+effect overrides what the write put in the victim.
+
+A dynamic primitive's O1 and O2 are back to back on one cell (the victim; for dCFds the
+aggressor): O1 is the operation just before O2 in the whole run, on the same word, ending in
+the cycle O2 starts (no pause, no other operation between) — adjacent operations of one
+visit, or the last operation of an element and the first of the next on the same word (⇑
+then ⇓ meet at the last address, ⇓ then ⇑ at the first; also from one background run to the
+next).  The cell holds x before O1 and, before O2, the value O2's notation names (the
+fault-free value after O1): a cell already upset by another fault does not see the sequence
+the primitive describes.  The other cell's condition (aggressor state a, victim state y) is
+judged just before O2.  This oracle must run on the whole array (it looks at the previous
+operation of the run).
 """
 
 from __future__ import annotations
@@ -14,17 +24,17 @@ from ..core import OracleFault
 
 
 class Fault(OracleFault):
+    mutable = ("prev",)
+
     def __init__(self, ctx, inst, inits, run):
         bits = ctx.bits
+        self.cycles = {"r": ctx.mem.read_cycles, "w": ctx.mem.write_cycles}
         self.rules = inst.kind.rules
         self.cells = [divmod(c, bits) for c in inst.sites]
         for (w, b), v in zip(self.cells, inits):
             run.vals[w][b] = v
         self.prev = None
         self.apply_states(run)
-
-    def visit(self, run, w):
-        self.prev = None
 
     def cell(self, run, i):
         w, b = self.cells[i]
@@ -47,9 +57,11 @@ class Fault(OracleFault):
         vi = len(self.cells) - 1
         vw, vb = self.cells[vi]
         pre_v = vals[vw][vb]
+        aw = ab = pre_a = None
         if vi == 1:
             aw, ab = self.cells[0]
             pre_a = vals[aw][ab]
+        pre = tuple(vals[c[0]][c[1]] for c in self.cells)
         out = None
         if kind == "r":
             out = list(vals[w])
@@ -58,15 +70,24 @@ class Fault(OracleFault):
         for rule in self.rules:
             ca, cv = rule.agg, rule.vic
             if rule.then is not None:
-                # dynamic: the previous operation of this visit was the first one, on the
-                # cell holding cv.pre, and this operation is the second one
+                # dynamic: this operation is O2; the previous operation of the run (``prev``:
+                # word, kind, data, the fault's cells before it, the cycle it ended) was O1
                 t2 = rule.then
-                if (w != vw or prev is None or prev[0] != cv.op or prev[2] != cv.pre
-                        or (cv.op == "w" and prev[1] != cv.val)
-                        or kind != t2.op or pre_v != t2.pre or (kind == "w" and data[vb] != t2.val)):
+                if rule.then_on_agg:            # dCFds: both operations on the aggressor
+                    ci, cw, cb, o1, pre_c = 0, aw, ab, ca, pre_a
+                else:
+                    ci, cw, cb, o1, pre_c = vi, vw, vb, cv, pre_v
+                if (w != cw or prev is None or prev[0] != cw or prev[4] != t or prev[1] != o1.op
+                        or prev[3][ci] != o1.pre or (o1.op == "w" and prev[2][cb] != o1.val)
+                        or kind != t2.op or pre_c != t2.pre or (kind == "w" and data[cb] != t2.val)):
+                    continue
+                if rule.then_on_agg:
+                    if pre_v != cv.pre:
+                        continue
+                elif ca is not None and pre_a != ca.pre:
                     continue
                 post_v = rule.f
-                if kind == "r":
+                if kind == "r" and not rule.then_on_agg:
                     out[vb] = rule.r
                 continue
             if ca is None:
@@ -91,8 +112,8 @@ class Fault(OracleFault):
                 post_v = rule.f
                 if kind == "r":
                     out[vb] = rule.r
-        if w == vw:   # what a dynamic primitive's second operation looks back at
-            self.prev = (kind, data[vb] if kind == "w" else None, pre_v)
+        # what a dynamic primitive's O2 looks back at: this operation and when it ends
+        self.prev = (w, kind, tuple(data), pre, t + self.cycles[kind])
         if kind == "w":
             vals[w] = list(data)
         if post_v is not None:
