@@ -9,6 +9,7 @@ from __future__ import annotations
 import math
 import re
 from dataclasses import dataclass
+from functools import cached_property
 from fractions import Fraction
 
 from ..errors import ModelError
@@ -44,9 +45,34 @@ def seconds_to_cycles(seconds: Fraction, clock_hz: Fraction) -> int:
     return math.ceil(Fraction(seconds) * clock_hz)
 
 
+EXPAND_LIMIT = 1 << 16      # operations per address visit the spelled-out views may hold
+
+
+@dataclass(frozen=True)
+class OpRun:
+    """``repeat`` back-to-back copies of one operation in an address visit."""
+
+    kind: str                   # 'r' | 'w'
+    value: int                  # 0 | 1
+    repeat: int
+    offset: int                 # cycle offset of the first copy in the visit
+    each: int                   # cycles of one copy
+    first: int                  # index of the first copy among the visit's operations
+
+    @property
+    def end(self) -> int:
+        return self.offset + self.repeat * self.each
+
+
 @dataclass(frozen=True)
 class Segment:
-    """One element (or delay) of one background run, placed in time."""
+    """One element (or delay) of one background run, placed in time.
+
+    ``runs`` is the closed form (one entry per operation as written, repeats as counts);
+    ``op_offsets``/``op_kinds``/``op_values`` spell the repeats out and exist only for
+    visits of at most :data:`EXPAND_LIMIT` operations (the time-dependent DRAM families and
+    the exporter work from ``runs``; the other families grade an equivalent shorter test).
+    """
 
     run: int
     item: int                   # index in test.items
@@ -54,10 +80,45 @@ class Segment:
     order: str | None           # 'up' | 'down' | 'any' (None for a delay)
     start: int                  # first cycle
     per_address: int            # cycles one address takes (0 for a delay)
-    op_offsets: tuple[int, ...]  # cycle offset of each (expanded) op in an address visit
-    op_kinds: tuple[str, ...]    # 'r' / 'w' per expanded op
-    op_values: tuple[int, ...]   # 0 / 1 per expanded op
+    runs: tuple[OpRun, ...]     # the operations of one address visit, repeats as counts
     cycles: int                 # cycles of the whole segment
+
+    @property
+    def ops_per_visit(self) -> int:
+        return sum(r.repeat for r in self.runs)
+
+    @cached_property
+    def _expanded(self):
+        n = self.ops_per_visit
+        if n > EXPAND_LIMIT:
+            from ..errors import EngineLimitError
+
+            raise EngineLimitError(
+                f"an address visit of {n:,} operations is only handled in closed form "
+                f"(at most {EXPAND_LIMIT:,} are spelled out)"
+            )
+        offs, kinds, vals = [], [], []
+        for r in self.runs:
+            for i in range(r.repeat):
+                offs.append(r.offset + i * r.each)
+                kinds.append(r.kind)
+                vals.append(r.value)
+        return tuple(offs), tuple(kinds), tuple(vals)
+
+    @property
+    def op_offsets(self) -> tuple[int, ...]:
+        """Cycle offset of each (expanded) op in an address visit."""
+        return self._expanded[0]
+
+    @property
+    def op_kinds(self) -> tuple[str, ...]:
+        """'r' / 'w' per expanded op."""
+        return self._expanded[1]
+
+    @property
+    def op_values(self) -> tuple[int, ...]:
+        """0 / 1 per expanded op."""
+        return self._expanded[2]
 
 
 @dataclass(frozen=True)
@@ -87,19 +148,20 @@ def schedule(test, mem, runs: int | None = None) -> Schedule:
         for ii, item in enumerate(test.items):
             if hasattr(item, "ops"):
                 ei += 1
-                offs, kinds, vals = [], [], []
+                oruns = []
                 c = 0
-                for op in item.expanded():
-                    offs.append(c)
-                    kinds.append(op.kind)
-                    vals.append(op.value)
-                    c += mem.read_cycles if op.kind == "r" else mem.write_cycles
+                k = 0
+                for op in item.ops:
+                    each = mem.read_cycles if op.kind == "r" else mem.write_cycles
+                    oruns.append(OpRun(op.kind, op.value, op.repeat, c, each, k))
+                    c += each * op.repeat
+                    k += op.repeat
                 total = c * mem.words
-                segs.append(Segment(run, ii, ei, item.order, t, c, tuple(offs), tuple(kinds), tuple(vals), total))
+                segs.append(Segment(run, ii, ei, item.order, t, c, tuple(oruns), total))
                 t += total
-                ops += len(offs) * mem.words
+                ops += k * mem.words
             else:
                 d = seconds_to_cycles(item.seconds, mem.clock_hz)
-                segs.append(Segment(run, ii, None, None, t, 0, (), (), (), d))
+                segs.append(Segment(run, ii, None, None, t, 0, (), d))
                 t += d
     return Schedule(tuple(segs), t, ops, mem.clock_hz, runs)

@@ -15,7 +15,7 @@ from ..errors import SourcePos
 
 ORDERS = ("up", "down", "any")
 UNITS = {"ns": Fraction(1, 10**9), "us": Fraction(1, 10**6), "ms": Fraction(1, 1000), "s": Fraction(1)}
-MAX_REPEAT = 65536
+MAX_REPEAT = 1_000_000_000     # hammer-length repeats; graded and exported in closed form
 
 
 @dataclass(frozen=True)
