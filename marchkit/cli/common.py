@@ -36,6 +36,14 @@ def add_memory_options(p) -> None:
     g.add_argument("--scramble-bits", metavar="LIST", help="address scrambling: physical bit i takes logical bit LIST[i]")
     g.add_argument("--scramble-xor", metavar="MASK", help="address scrambling: XOR mask applied after the bit order")
     g.add_argument("--neighbours", type=int, choices=(4, 8), help="physical neighbours: 4 (N/S/E/W) or 8 (with diagonals; default)")
+    d = p.add_argument_group("DRAM (same names as memory-file keys)")
+    d.add_argument("--refresh", metavar="PERIOD", help="refresh period, e.g. 64ms (0 = none, an SRAM; default)")
+    d.add_argument("--refresh-scheme", choices=("distributed", "burst"),
+                   help="distributed: one row every PERIOD/rows (default); burst: all rows at the start of each period")
+    d.add_argument("--refresh-during-delays", choices=("yes", "no"),
+                   help="does refresh run during the test's delays? (default no: a retention pause suspends it)")
+    d.add_argument("--page", choices=("open", "closed"),
+                   help="closed: every access activates its row (default); open: only an access to another row does")
 
 
 def memory_from_args(args):
@@ -46,6 +54,8 @@ def memory_from_args(args):
         backgrounds=args.backgrounds, clock=args.clock, read_cycles=args.read_cycles,
         write_cycles=args.write_cycles, scramble_bits=args.scramble_bits,
         scramble_xor=args.scramble_xor, neighbours=args.neighbours,
+        refresh=getattr(args, "refresh", None), refresh_scheme=getattr(args, "refresh_scheme", None),
+        refresh_during_delays=getattr(args, "refresh_during_delays", None), page=getattr(args, "page", None),
     )
     if args.memory == "demo":
         base = dict(DEMO_MEMORY)
