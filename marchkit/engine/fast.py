@@ -328,11 +328,56 @@ def _pair_counts_explicit(prep, a, v):
     return np.bincount(key, minlength=4 * K * K).reshape(4, K, K)
 
 
+REPEAT_TRANSIENT = 8     # copies after which a repeated operation's effect is periodic ...
+REPEAT_PERIOD = 12       # ... with a period dividing this (every cycle length 1 to 4)
+
+
+def _short_count(k: int) -> int:
+    """An equivalent repeat count for the time-independent families: a run of k identical
+    operations on one word drives a finite state (the involved cells, the sense amplifier,
+    the previous operation's context) through a deterministic map, which is periodic after
+    REPEAT_TRANSIENT steps with a period dividing REPEAT_PERIOD; so k and
+    T + P + (k - T) mod P copies leave the same state, and the shorter run, being a prefix
+    that holds a whole period, shows every read value the long run shows.  Checked against
+    the literal reference with long repeats in tests/test_dram.py."""
+    T, P = REPEAT_TRANSIENT, REPEAT_PERIOD
+    if k <= T + 2 * P:
+        return k
+    return T + P + (k - T) % P
+
+
+def equivalent_short_test(test):
+    from dataclasses import replace
+
+    if all(_short_count(op.repeat) == op.repeat for e in test.elements for op in e.ops):
+        return test
+    items = []
+    for it in test.items:
+        if hasattr(it, "ops"):
+            it = replace(it, ops=tuple(replace(op, repeat=_short_count(op.repeat)) for op in it.ops))
+        items.append(it)
+    return replace(test, items=tuple(items))
+
+
+def _op_offset(seg, k: int) -> int:
+    for r in seg.runs:
+        if r.first <= k < r.first + r.repeat:
+            return r.offset + (k - r.first) * r.each
+    raise IndexError(k)
+
+
 class Engine:
     """Grades a selection of fault kinds on one (test, memory)."""
 
     def __init__(self, test, mem, sched=None, examples: int = 0):
-        self.prep = Prepared(test, mem, sched)
+        from ..model import schedule
+
+        self.full_test = test
+        self.full_sched = sched or schedule(test, mem)
+        short = equivalent_short_test(test)
+        # families that do not depend on time grade an equivalent test with long repeats cut
+        # down (see equivalent_short_test); the time-dependent ones work from full_sched
+        self.prep = Prepared(short, mem, self.full_sched if short is test else None)
         self.examples = examples      # how many undetected instances to name per kind
 
     def _take(self, res, instances):
@@ -653,7 +698,7 @@ class Engine:
         fams: dict[str, list] = {}
         for k in selection.kinds:
             fams.setdefault(k.family, []).append(k)
-        steps = [f for f in ("rules", "af", "sof", "drf") if f in fams]
+        steps = [f for f in ("rules", "af", "sof", "drf", "retention", "disturb") if f in fams]
         if workers is None:
             workers = _default_workers(self.prep, len(steps))
         results: dict[str, KindResult] = {}
@@ -695,9 +740,21 @@ class Engine:
             self.grade_af(kinds, scope, out)
         elif fam == "sof":
             self.grade_sof(kinds, out)
+        elif fam in ("retention", "disturb"):
+            from .dram_fast import grade_dram_kinds
+
+            grade_dram_kinds(self.dram_prep(), kinds, out, KindResult, self.examples)
         else:
             self.grade_drf(kinds, out)
         return out
+
+    def dram_prep(self):
+        """Shared state of the DRAM families (on the full-length test)."""
+        if getattr(self, "_dram_prep", None) is None:
+            from .dram_fast import DramPrep
+
+            self._dram_prep = DramPrep(self.full_test, self.prep.mem, self.full_sched)
+        return self._dram_prep
 
     # ---- per-instance verdicts (audits, differential tests) ------------------------
     def instance_verdicts(self, instances):
@@ -743,6 +800,27 @@ class Engine:
             elif fam == "sof":
                 d, ev = self._sof_verdict(inst.kind, inst.sites[0])
                 out[i] = (d, self._detection(ev.seg, ev.op, ev.word) if d else None)
+        dram = [i for i, x in enumerate(instances) if x.kind.family in ("retention", "disturb")]
+        if dram:
+            from .dram_fast import DramEngine, first_codes
+
+            eng = DramEngine(self.dram_prep())
+            dcache = {}
+            for i in dram:
+                inst = instances[i]
+                if inst.kind.text not in dcache:
+                    dcache[inst.kind.text] = first_codes(eng, inst.kind)
+                det, canon, maxk = dcache[inst.kind.text]
+                w, b = divmod(inst.sites[0], prep.B)
+                if det[w, b]:
+                    code = int(canon[w, b])
+                    si, k = divmod(code, maxk)
+                    seg = self.full_sched.segments[si]
+                    cycle = int(seg.start + (prep.rank[w] if seg.order != "down" else prep.n - 1 - prep.rank[w])
+                                * seg.per_address + _op_offset(seg, k))
+                    out[i] = (True, Detection(seg.run, seg.element, k, int(w), cycle))
+                else:
+                    out[i] = (False, None)
         drf = [i for i, x in enumerate(instances) if x.kind.family == "drf"]
         cache = {}
         for i in drf:

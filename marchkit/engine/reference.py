@@ -53,9 +53,18 @@ def reference_verdicts(test, mem, instances, sched=None, limit=REFERENCE_LIMIT):
             f"the reference simulator would take about {cost:.2g} steps here; use it on a smaller "
             "memory or fault list (it is meant for audits), or use the default engine"
         )
+    dram = [i for i, x in enumerate(instances) if x.kind.family in ("retention", "disturb")]
+    out = [None] * len(instances)
+    if dram:
+        from .dram_reference import dram_reference_verdicts
+
+        for i, v in zip(dram, dram_reference_verdicts(test, mem, [instances[i] for i in dram], sched)):
+            out[i] = v
+    if len(dram) == len(instances):
+        return out
     ctx = full_context(test, mem, sched)
-    out = []
-    for inst in instances:
-        det, ev = verdict(ctx, inst)
-        out.append((det, event_detection(ctx, ev) if ev is not None else None))
+    for i, inst in enumerate(instances):
+        if out[i] is None:
+            det, ev = verdict(ctx, inst)
+            out[i] = (det, event_detection(ctx, ev) if ev is not None else None)
     return out

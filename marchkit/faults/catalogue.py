@@ -77,8 +77,11 @@ class FaultSelection:
         return tuple(seen)
 
 
-def select_faults(spec: str = "static", retention=DEFAULT_RETENTION) -> FaultSelection:
+def select_faults(spec: str = "static", retention=DEFAULT_RETENTION, thresholds=None) -> FaultSelection:
+    from .dram import DEFAULT_THRESHOLD, disturb_kinds, parse_thresholds, retention_kinds
+
     retention = tuple(Fraction(t) for t in retention)
+    thresholds = parse_thresholds(thresholds if thresholds is not None else DEFAULT_THRESHOLD)
     kinds: dict[str, FaultKind] = {}
     for raw in _split(spec):
         part = raw.strip()
@@ -91,6 +94,10 @@ def select_faults(spec: str = "static", retention=DEFAULT_RETENTION) -> FaultSel
             got = drf_kinds(retention)
         elif low == "dynamic":
             got = DYNAMIC
+        elif low == "disturb":
+            got = disturb_kinds(thresholds)
+        elif low == "dram":                 # retention with refresh and disturb
+            got = retention_kinds(retention) + disturb_kinds(thresholds)
         elif low == "all":
             got = all_kinds(retention)
         elif part.startswith("<"):
@@ -98,12 +105,12 @@ def select_faults(spec: str = "static", retention=DEFAULT_RETENTION) -> FaultSel
         else:
             got = _class_kinds(part, retention)
             if got is None:
-                named = {k.text.lower(): k for k in all_kinds(retention)}
+                named = {k.text.lower(): k for k in all_kinds(retention) + disturb_kinds(thresholds)}
                 if low in named:
                     got = (named[low],)
                 else:
                     raise FaultSpecError(
-                        f"unknown fault selection {part!r}; use static, classic, retention, dynamic, all, "
+                        f"unknown fault selection {part!r}; use static, classic, retention, dynamic, disturb, dram, all, "
                         "a class (" + ", ".join(STATIC_CLASSES + ("SAF", "SOF", "AF", "CFin", "CFid", "DRF") + DYNAMIC_CLASSES) +
                         "), a kind such as SA0 or AF:alias, or a primitive such as <0w1/0/->"
                     )
