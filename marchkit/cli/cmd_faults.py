@@ -18,38 +18,9 @@ def register(sub):
 
 
 def describe(kind) -> str:
-    if kind.description:
-        return kind.description
-    if kind.family == "rules" and len(kind.rules) == 1 and kind.rules[0].then is not None:
-        r = kind.rules[0]
-        o1, o2 = r.vic, r.then
-        first = f"w{o1.val}" if o1.op == "w" else f"r{o1.pre}"
-        second = f"w{o2.val}" if o2.op == "w" else f"r{o2.pre}"
-        out = f"{first} then at once {second} on the cell holding {o1.pre}: it is left {r.f}"
-        return out + (f" and the read returns {r.r}" if r.r is not None else "")
-    if kind.family == "rules" and len(kind.rules) == 1:
-        r = kind.rules[0]
-        v = r.vic
-        who = "the cell" if r.agg is None else "the victim"
-        if r.agg is None:
-            cond = ""
-        elif r.agg.op is None:
-            cond = f" while the aggressor holds {r.agg.pre}"
-        else:
-            op = f"w{r.agg.val}" if r.agg.op == "w" else f"r{r.agg.pre}"
-            cond = f" when the aggressor (holding {r.agg.pre}) gets {op}"
-        if v.op is None:
-            s = f"{who} cannot stay {v.pre}: it becomes {r.f}"
-        elif v.op == "w":
-            s = f"writing {v.val} to {who} holding {v.pre} leaves {r.f}"
-        else:
-            s = f"reading {who} holding {v.pre} returns {r.r} and leaves {r.f}"
-        if r.agg is not None and r.agg.op is not None:
-            s = f"{who} holding {v.pre} becomes {r.f}"
-        if r.agg is not None and r.agg.op is None and v.op is None:
-            return f"while the aggressor holds {r.agg.pre}, {who} cannot stay {v.pre}: it becomes {r.f}"
-        return s + cond
-    return ", ".join(r.text for r in kind.rules)
+    from ..faults import family_of
+
+    return family_of(kind).describe(kind)
 
 
 def run(args) -> int:
@@ -57,7 +28,7 @@ def run(args) -> int:
 
     from rich.table import Table
 
-    from ..faults import instance_count, parse_pairs, select_faults
+    from ..faults import family_of, instance_count, parse_pairs, select_faults
     from .common import console, retention_from_args
 
     sel = select_faults(args.selection, retention_from_args(args))
@@ -69,8 +40,8 @@ def run(args) -> int:
         scope = parse_pairs(args.pairs)
     rows = []
     for k in sel.kinds:
-        row = {"kind": k.text, "class": k.cls, "cells": k.arity if k.family != "af" else 0,
-               "words": k.arity if k.family == "af" else 0, "what": describe(k)}
+        cells, words = family_of(k).site_counts(k)
+        row = {"kind": k.text, "class": k.cls, "cells": cells, "words": words, "what": describe(k)}
         if mem is not None:
             row["instances"] = instance_count(k, mem, scope)
         rows.append(row)

@@ -7,20 +7,23 @@ Semantics (the standard ones; see DEVELOPERS.md):
 * A read detects when it returns, in any bit, a known value other than the expected one.
   Reads before the test's first write expect nothing (the cell was never written) and never
   detect.
-* A primitive ``<S/F/R>`` fires when its sensitising operation is applied while its state
-  conditions hold (conditions are judged on the values before the operation); state-sensitised
-  primitives act at the start and after every operation.  Inside one word a write is applied
-  to all bits at once; a fault's effect overrides what the write put in the victim.
-* SOF: writes do not reach the cell; a read returns, for that bit, the sense amplifier's
-  previous value.  The sense amplifier holds the last value read, per bit (unknown at first).
-* AF: see :mod:`marchkit.faults.primitives`; a read of several cells returns their AND; a read
-  of an address that selects no cell returns a fixed value, the same in every bit, unknown
-  which (so detection must hold for both).
-* Dynamic primitives ``<x O1 O2/F/R>``: O1 and O2 are applied back to back to the cell —
-  adjacent operations of one visit of its address in a march element — with the cell holding x
-  before O1; O2 then leaves F (and a read O2 returns R).
-* DRF: when a cell holding the lost value is accessed (read or write of its word) at least τ
-  after its last access (or the start), it has flipped before the operation acts.
+* What a fault does is its family's *oracle* (``marchkit/engine/oracles/<family>.py``): a
+  :class:`OracleFault` that takes part in every operation of the run.
+
+**⇕ elements without 2^k scenarios.**  "Detected for every choice of orders" is computed by
+carrying, from element to element, the set of distinct states (memory contents, sense
+amplifier, the fault's own state) that are reachable with no detection yet: a ⇕ element runs
+every state of the set both ways; a state whose run detects is dropped; equal states merge.
+The fault is detected iff the set is empty at the end.  This is exactly the enumeration of
+all 2^k choices (every path reaches its end state through the set), at a cost linear in the
+number of elements times the size of the set, which for a march test stays small (its
+writes make the contents of every word known).
+
+A ⇕ element runs the same way in every background run (one choice per element), so with
+several runs the choices of ⇕ elements that come again in a later run are part of the state
+until their last run; with one run (the default) nothing is carried but contents.  Above
+:data:`MAX_STATES` states the reference refuses (:class:`~marchkit.errors.EngineLimitError`)
+rather than run away.
 """
 
 from __future__ import annotations
@@ -29,6 +32,7 @@ import itertools
 from dataclasses import dataclass
 
 X = 2  # unknown value
+MAX_STATES = 4096   # reachable undetected states carried across a ⇕ element, per instance
 
 
 def and3(a: int, b: int) -> int:
@@ -51,197 +55,128 @@ class Event:
 
 def determined_reads(sched) -> set[tuple[int, int]]:
     """(segment index, op index) of reads that come after the test's first write."""
-    out = set()
-    seen_write = False
-    for si, seg in enumerate(sched.segments):
-        for k, kind in enumerate(seg.op_kinds):
-            if kind == "w":
-                seen_write = True
-            elif seen_write:
-                out.add((si, k))
-    return out
+    from ..model import compared_reads
+
+    return compared_reads(sched)
+
+
+class OracleFault:
+    """One fault instance's behaviour in one scenario (a family's oracle subclasses this).
+
+    ``__init__(ctx, inst, inits, run)`` places the fault (``inits``: the initial values it
+    tries, as many as ``Family.init_values(kind)``); it may set ``run.vals`` of its cells.
+    ``access(run, w, kind, data, t)`` performs one operation — ``kind`` ``"r"``/``"w"`` on word
+    ``w`` with fault-free data ``data`` (list of bits) at cycle ``t`` — updating
+    ``run.vals`` and returning the bits a read returns (None for a write).  ``visit(run, w)``
+    is called when a new visit of word ``w`` starts.  ``mutable`` names the attributes that
+    change while running (copied per branch, part of the state that ⇕ sets compare).
+    """
+
+    mutable: tuple[str, ...] = ()
+
+    def visit(self, run, w):
+        pass
+
+    def access(self, run, w, kind, data, t):  # pragma: no cover - every oracle overrides it
+        raise NotImplementedError
+
+    def state(self) -> tuple:
+        return tuple(_frozen(getattr(self, n)) for n in self.mutable)
+
+    def copy(self) -> "OracleFault":
+        import copy
+
+        new = copy.copy(self)
+        for n in self.mutable:
+            v = getattr(self, n)
+            if isinstance(v, (list, dict, set)):
+                setattr(new, n, copy.deepcopy(v))
+        return new
+
+
+def _frozen(v):
+    if isinstance(v, list):
+        return tuple(_frozen(x) for x in v)
+    if isinstance(v, dict):
+        return tuple(sorted((k, _frozen(x)) for k, x in v.items()))
+    if isinstance(v, set):
+        return tuple(sorted(v))
+    return v
 
 
 class Run:
-    """One scenario of one fault instance: fixed initial values and ⇕ choices."""
+    """One scenario of one fault instance: fixed initial values; orders chosen per element."""
 
-    def __init__(self, ctx, inst, inits, any_up):
+    def __init__(self, ctx, inst, inits, _copy=False):
+        if _copy:
+            return
+        from .registry import oracle
+
         self.ctx = ctx
         self.inst = inst
         self.kind = inst.kind
-        self.any_up = any_up
         bits = ctx.bits
         self.vals = {w: [X] * bits for w in ctx.words_up}
         self.sa = [X] * bits
-        fam = self.kind.family
-        if fam in ("rules", "drf"):
-            self.cells = [divmod(c, bits) for c in inst.sites]
-            for (w, b), v in zip(self.cells, inits):
-                self.vals[w][b] = v
-        if fam == "drf":
-            self.last = 0
-            self.tau = ctx.tau_cycles(self.kind.tau)
-        if fam == "af":
-            a = inst.sites[0]
-            b = inst.sites[1] if len(inst.sites) > 1 else None
-            self.dec = {}
-            if self.kind.af == "none":
-                self.dec[a] = []
-                self.floating = inits[0]
-            elif self.kind.af == "alias":
-                self.dec[b] = [a]
-            elif self.kind.af == "multi":
-                self.dec[a] = [a, b]
-            else:
-                self.dec[a] = [a, b]
-                self.dec[b] = [a, b]
-        if fam == "sof":
-            self.sof = divmod(inst.sites[0], bits)
-        self.prev = None
-        if fam == "rules":
-            self.apply_states()
+        self.seq = 0
+        self.choices = ()                 # (element, up) of ⇕ elements still to come again
+        self.fault = oracle(inst.kind).Fault(ctx, inst, inits, self)
 
-    # -- rules (primitives and classic models) --------------------------------------
-    def cell(self, i):
-        w, b = self.cells[i]
-        return self.vals[w][b]
+    def copy(self) -> "Run":
+        new = Run(None, None, None, _copy=True)
+        new.ctx, new.inst, new.kind, new.seq = self.ctx, self.inst, self.kind, self.seq
+        new.choices = self.choices
+        new.vals = {w: list(v) for w, v in self.vals.items()}
+        new.sa = list(self.sa)
+        new.fault = self.fault.copy()
+        return new
 
-    def apply_states(self):
-        for rule in self.kind.rules:
-            if rule.vic.op is not None or (rule.agg is not None and rule.agg.op is not None):
-                continue
-            vi = len(self.cells) - 1
-            if self.cell(vi) != rule.vic.pre:
-                continue
-            if rule.agg is not None and self.cell(0) != rule.agg.pre:
-                continue
-            w, b = self.cells[vi]
-            self.vals[w][b] = rule.f
+    def state(self) -> tuple:
+        return (tuple(tuple(v) for v in self.vals.values()), tuple(self.sa), self.fault.state(), self.choices)
 
-    def access_rules(self, w, kind, data):
-        vi = len(self.cells) - 1
-        vw, vb = self.cells[vi]
-        pre_v = self.vals[vw][vb]
-        if vi == 1:
-            aw, ab = self.cells[0]
-            pre_a = self.vals[aw][ab]
-        out = None
-        if kind == "r":
-            out = list(self.vals[w])
-        post_v = None
-        prev = self.prev
-        for rule in self.kind.rules:
-            ca, cv = rule.agg, rule.vic
-            if rule.then is not None:
-                # dynamic: the previous operation of this visit was the first one, on the
-                # cell holding cv.pre, and this operation is the second one
-                t = rule.then
-                if (w != vw or prev is None or prev[0] != cv.op or prev[2] != cv.pre
-                        or (cv.op == "w" and prev[1] != cv.val)
-                        or kind != t.op or pre_v != t.pre or (kind == "w" and data[vb] != t.val)):
-                    continue
-                post_v = rule.f
-                if kind == "r":
-                    out[vb] = rule.r
-                continue
-            if ca is None:
-                if cv.op is None or w != vw or cv.op != kind or pre_v != cv.pre:
-                    continue
-                if kind == "w" and data[vb] != cv.val:
-                    continue
-                post_v = rule.f
-                if kind == "r":
-                    out[vb] = rule.r
-            elif ca.op is not None:
-                if w != aw or ca.op != kind or pre_a != ca.pre or pre_v != cv.pre:
-                    continue
-                if kind == "w" and data[ab] != ca.val:
-                    continue
-                post_v = rule.f
-            elif cv.op is not None:
-                if w != vw or cv.op != kind or pre_v != cv.pre or pre_a != ca.pre:
-                    continue
-                if kind == "w" and data[vb] != cv.val:
-                    continue
-                post_v = rule.f
-                if kind == "r":
-                    out[vb] = rule.r
-        if w == vw:   # what a dynamic primitive's second operation looks back at
-            self.prev = (kind, data[vb] if kind == "w" else None, pre_v)
-        if kind == "w":
-            self.vals[w] = list(data)
-        if post_v is not None:
-            self.vals[vw][vb] = post_v
-        self.apply_states()
-        return out
-
-    # -- one operation -----------------------------------------------------------------
     def access(self, w, kind, data, t):
-        fam = self.kind.family
-        if fam == "rules":
-            out = self.access_rules(w, kind, data)
-        elif fam == "af":
-            targets = self.dec.get(w, [w])
-            if kind == "w":
-                for p in targets:
-                    self.vals[p] = list(data)
-                return None
-            if not targets:
-                out = [self.floating] * self.ctx.bits
-            else:
-                out = list(self.vals[targets[0]])
-                for p in targets[1:]:
-                    out = [and3(x, y) for x, y in zip(out, self.vals[p])]
-        elif fam == "sof":
-            cw, cb = self.sof
-            if kind == "w":
-                keep = self.vals[w][cb]
-                self.vals[w] = list(data)
-                if w == cw:
-                    self.vals[w][cb] = keep
-                return None
-            out = list(self.vals[w])
-            if w == cw:
-                out[cb] = self.sa[cb]
-        else:  # drf
-            (cw, cb), = self.cells
-            if w == cw:
-                if self.vals[cw][cb] == self.kind.drf_value and t - self.last >= self.tau:
-                    self.vals[cw][cb] = 1 - self.kind.drf_value
-                self.last = t
-            if kind == "w":
-                self.vals[w] = list(data)
-                return None
-            out = list(self.vals[w])
+        out = self.fault.access(self, w, kind, data, t)
         if kind == "r":
             self.sa = list(out)
         return out
 
-    def run(self):
-        """First detecting :class:`Event`, or None."""
+    def run_segment(self, si, up):
+        """Run segment ``si`` in the given order; the first detecting :class:`Event`, or None."""
         ctx = self.ctx
-        seq = 0
+        seg = ctx.sched.segments[si]
+        words = ctx.words_up if up else ctx.words_down
+        bg = ctx.bg[seg.run]
+        n1 = ctx.n - 1
+        fault = self.fault
+        for w in words:
+            fault.visit(self, w)          # a new visit: nothing done to this word just before
+            pos = ctx.rank[w] if up else n1 - ctx.rank[w]
+            base = seg.start + pos * seg.per_address
+            bgw = bg[w]
+            for k, kind in enumerate(seg.op_kinds):
+                v = seg.op_values[k]
+                data = [x ^ v for x in bgw]
+                out = self.access(w, kind, data, base + seg.op_offsets[k])
+                self.seq += 1
+                if out is not None and (si, k) in ctx.determined:
+                    for o, e in zip(out, data):
+                        if o != X and o != e:
+                            return Event(si, w, k, self.seq)
+        return None
+
+    def run(self, any_up=None):
+        """First detecting :class:`Event` of the whole test, or None; ⇕ elements run as ⇑
+        unless ``any_up`` (one flag per ⇕ element) says otherwise."""
+        ctx = self.ctx
         for si, seg in enumerate(ctx.sched.segments):
             if seg.element is None:
                 continue
-            up = seg.order == "up" or (seg.order == "any" and self.any_up[ctx.any_index[seg.element]])
-            words = ctx.words_up if up else ctx.words_down
-            bg = ctx.bg[seg.run]
-            n1 = ctx.n - 1
-            for w in words:
-                self.prev = None          # a new visit: nothing done to this word just before
-                pos = ctx.rank[w] if up else n1 - ctx.rank[w]
-                base = seg.start + pos * seg.per_address
-                bgw = bg[w]
-                for k, kind in enumerate(seg.op_kinds):
-                    v = seg.op_values[k]
-                    data = [x ^ v for x in bgw]
-                    out = self.access(w, kind, data, base + seg.op_offsets[k])
-                    seq += 1
-                    if out is not None and (si, k) in ctx.determined:
-                        for o, e in zip(out, data):
-                            if o != X and o != e:
-                                return Event(si, w, k, seq)
+            up = seg.order != "down"
+            if seg.order == "any" and any_up is not None:
+                up = any_up[ctx.any_index[seg.element]]
+            ev = self.run_segment(si, up)
+            if ev is not None:
+                return ev
         return None
 
 
@@ -264,15 +199,60 @@ class Context:
         self.n_any = len(any_elems)
 
     def tau_cycles(self, tau) -> int:
-        from ..model import seconds_to_cycles
+        from ..units import seconds_to_cycles
 
         return seconds_to_cycles(tau, self.mem.clock_hz)
 
 
 def n_init_cells(kind) -> int:
-    if kind.family == "af":
-        return 1 if kind.af == "none" else 0   # the floating read value
-    return kind.arity if kind.family in ("rules", "drf") else 0
+    """Unknown initial values the oracle tries for one instance of ``kind``."""
+    from ..faults import family_of
+
+    return family_of(kind).init_values(kind)
+
+
+def undetected_survives(ctx, inst, max_states=MAX_STATES) -> bool:
+    """True if some choice of initial values and ⇕ orders leaves ``inst`` undetected —
+    by carrying the set of reachable undetected states (see the module docstring)."""
+    from ..errors import EngineLimitError
+
+    states = {}
+    for inits in itertools.product((0, 1), repeat=n_init_cells(inst.kind)):
+        r = Run(ctx, inst, inits)
+        states.setdefault(r.state(), r)
+    last_run = ctx.sched.segments[-1].run if ctx.sched.segments else 0
+    for si, seg in enumerate(ctx.sched.segments):
+        if seg.element is None:
+            continue
+        nxt = {}
+        for r in states.values():
+            chosen = dict(r.choices)
+            if seg.order != "any":
+                orders = (seg.order == "up",)
+            elif seg.element in chosen:
+                orders = (chosen[seg.element],)
+            else:
+                orders = (True, False)
+            for j, up in enumerate(orders):
+                rr = r.copy() if j + 1 < len(orders) else r
+                if seg.order == "any":
+                    c = dict(chosen)
+                    if seg.run < last_run:
+                        c[seg.element] = up         # the element comes again: keep its order
+                    else:
+                        c.pop(seg.element, None)    # its last run: forget it
+                    rr.choices = tuple(sorted(c.items()))
+                if rr.run_segment(si, up) is None:
+                    nxt.setdefault(rr.state(), rr)
+        if len(nxt) > max_states:
+            raise EngineLimitError(
+                f"{inst.kind.text}: more than {max_states} distinct undetected memory states after "
+                f"element {seg.element + 1}; the reference simulator refuses this test (its ⇕ "
+                "elements leave too many contents possible)")
+        states = nxt
+        if not states:
+            return False
+    return bool(states)
 
 
 def verdict(ctx, inst):
@@ -281,12 +261,26 @@ def verdict(ctx, inst):
     The canonical scenario runs every ⇕ element as ⇑ — the order the exported stimulus
     uses; its event is the latest first detection over the initial values.
     """
-    n_init = n_init_cells(inst.kind)
+    canonical = None
+    for inits in itertools.product((0, 1), repeat=n_init_cells(inst.kind)):
+        ev = Run(ctx, inst, inits).run()
+        if ev is None:
+            return False, None
+        if canonical is None or ev.seq > canonical.seq:
+            canonical = ev
+    if ctx.n_any and undetected_survives(ctx, inst):
+        return False, None
+    return True, canonical
+
+
+def verdict_enumerated(ctx, inst):
+    """The same verdict by trying all 2^k ⇕ choices one by one (exponential; for the
+    differential tests of :func:`verdict` on small cases only)."""
     canonical = None
     for any_up in itertools.product((True, False), repeat=ctx.n_any):
         is_canon = all(any_up)
-        for inits in itertools.product((0, 1), repeat=n_init):
-            ev = Run(ctx, inst, inits, any_up).run()
+        for inits in itertools.product((0, 1), repeat=n_init_cells(inst.kind)):
+            ev = Run(ctx, inst, inits).run(any_up)
             if ev is None:
                 return False, None
             if is_canon and (canonical is None or ev.seq > canonical.seq):

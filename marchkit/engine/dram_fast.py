@@ -120,17 +120,31 @@ class DramEngine:
         self.p = prep
 
     # ---- per-cell ops of a visit (shared by both families) ---------------------------
-    def _visit_ops(self, si, seg, val, since, first, tstart):
+    def _visit_ops(self, si, seg, val, since, first, tstart, x, tau_word=None):
+        """The operations of every word's visit.  ``tau_word`` (memories without refresh):
+        stretches inside a visit are one operation long and may reach τ; after two copies
+        of a run the state is fixed (every copy sees the same state and gap)."""
         p = self.p
         bg = p.bg[seg.run]
+        prev_each = None
+
+        def decay():
+            val[val == x] = 1 - x
+
         for r in seg.runs:
             data = bg ^ np.int8(r.value)
+            copies = 2 if (tau_word is not None and r.repeat > 1 and r.each >= tau_word) else 1
+            for c in range(copies):
+                if tau_word is not None and ((c == 0 and prev_each is not None and prev_each >= tau_word) or c == 1):
+                    decay()
+                if r.kind == "w":
+                    val[...] = data
+                elif (si, r.first) in p.determined:
+                    det = (val != data) & (first < 0)
+                    first[det] = si * p.maxk + r.first + c
             if r.kind == "w":
-                val[...] = data
                 since[...] = (tstart + r.offset + (r.repeat - 1) * r.each)[:, None]
-            elif (si, r.first) in p.determined:
-                det = (val != data) & (first < 0)
-                first[det] = si * p.maxk + r.first
+            prev_each = r.each
 
     # ---- retention ---------------------------------------------------------------------
     def retention_first(self, kind):
@@ -138,7 +152,7 @@ class DramEngine:
         from ..model import seconds_to_cycles
 
         tau = seconds_to_cycles(kind.tau, p.mem.clock_hz)
-        if tau <= p.row_cycle:
+        if p.mem.dram and tau <= p.row_cycle:
             raise FaultSpecError(
                 f"retention time {kind.text} is {tau} clock cycle(s), not longer than a row cycle "
                 f"({p.row_cycle}); retention times are meant to be far longer than one access"
@@ -149,7 +163,8 @@ class DramEngine:
         unit_row = np.arange(U, dtype=np.int64) if row_mode else p.row
         x = kind.drf_value
         return self._scan(kind, lambda seg, tf, seq, st: self._ret_seg(seg, tf, seq, st, unit, unit_row, tau),
-                          lambda: {"last": np.zeros(U, np.int64), "fl": np.full(U, -1, np.int64)}, x)
+                          lambda: {"last": np.zeros(U, np.int64), "fl": np.full(U, -1, np.int64)}, x,
+                          None if row_mode else tau)
 
     def _ret_seg(self, seg, tf, seq, st, unit, unit_row, tau):
         """Latest crossing (stretch ≥ τ ending) of each word's unit up to its visit (n,)."""
@@ -272,7 +287,7 @@ class DramEngine:
         return flw
 
     # ---- the scan shared by both families ------------------------------------------------
-    def _scan(self, kind, seg_fn, fresh, x):
+    def _scan(self, kind, seg_fn, fresh, x, tau_word=None):
         """(detected (n, B), canonical first event code (n, B), maxk)."""
         p = self.p
         detected = np.ones((p.n, p.B), bool)
@@ -292,7 +307,7 @@ class DramEngine:
                     flw = seg_fn(seg, tf, seq, st)
                     decayed = (val == x) & (flw[:, None] > since)
                     val[decayed] = 1 - x
-                    self._visit_ops(si, seg, val, since, first, tf)
+                    self._visit_ops(si, seg, val, since, first, tf, x, tau_word)
                 firsts.append(first)
             f = np.stack(firsts)
             detected &= (f >= 0).all(axis=0)
@@ -304,14 +319,26 @@ class DramEngine:
 
 # ---- grading glue (counts per kind) ----------------------------------------------------------
 
-def grade_dram_kinds(prep, kinds, results, result_cls, examples=0):
-    """Fill ``results[kind.text]`` (``result_cls`` instances) for retention / disturb kinds."""
-    from ..faults import Instance
+def dram_prep(eng):
+    """The DRAM families' set-up for a fast :class:`~marchkit.engine.fast.Engine` (on the
+    full-length test), built once per engine."""
+    dp = eng.scratch.get("dram_prep")
+    if dp is None:
+        dp = eng.scratch["dram_prep"] = DramPrep(eng.full_test, eng.prep.mem, eng.full_sched)
+    return dp
 
-    eng = DramEngine(prep)
+
+def grade_dram_kinds(eng, kinds, results):
+    """Add a KindResult per retention / disturb kind to ``results``."""
+    from ..faults import Instance
+    from .results import KindResult
+
+    prep = dram_prep(eng)
+    deng = DramEngine(prep)
+    examples = eng.examples
     for kind in kinds:
-        res = results.setdefault(kind.text, result_cls(kind))
-        det, canon, maxk = first_codes(eng, kind)
+        res = results.setdefault(kind.text, KindResult(kind))
+        det, canon, maxk = first_codes(deng, kind)
         res.instances += det.size
         res.detected += int(det.sum())
         if not det.all():
@@ -329,3 +356,27 @@ def first_codes(eng, kind):
     if kind.family == "disturb":
         return eng.disturb_first(kind)
     return eng.retention_first(kind)
+
+
+def dram_verdicts(eng, instances):
+    """(detected, Detection | None) per retention / disturb instance."""
+    from ..model import op_cycle
+    from .results import Detection
+
+    prep = dram_prep(eng)
+    deng = DramEngine(prep)
+    cache = {}
+    out = []
+    for inst in instances:
+        if inst.kind.text not in cache:
+            cache[inst.kind.text] = first_codes(deng, inst.kind)
+        det, canon, maxk = cache[inst.kind.text]
+        w, b = divmod(inst.sites[0], prep.B)
+        if not det[w, b]:
+            out.append((False, None))
+            continue
+        si, k = divmod(int(canon[w, b]), maxk)
+        seg = prep.sched.segments[si]
+        pos = prep.rank[w] if seg.order != "down" else prep.n - 1 - prep.rank[w]
+        out.append((True, Detection(seg.run, seg.element, k, int(w), int(op_cycle(seg, k, int(pos))))))
+    return out

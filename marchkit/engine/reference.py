@@ -1,27 +1,18 @@
 """The literal reference simulator: for each fault instance, the whole array, every
-operation in order, every initial value and ⇕ choice.  Slow and obviously correct — the
-oracle the fast engine is tested against, and selectable for audits (``--engine reference``).
+operation in order, every initial value, and every ⇕ choice (carried as a set of reachable
+states, see :mod:`marchkit.engine.core`).  Slow and obviously correct — the oracle the fast
+engine is tested against, and selectable for audits (``--engine reference``).
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass
-
 from ..errors import EngineLimitError
 from .core import Context, verdict
+from .results import Detection
 
 REFERENCE_LIMIT = 5_000_000_000  # op-steps; beyond this the reference refuses
 
-
-@dataclass(frozen=True)
-class Detection:
-    """Where an instance is first detected (canonical scenario: ⇕ run as ⇑)."""
-
-    run: int
-    element: int
-    op: int
-    address: int
-    cycle: int
+__all__ = ["Detection", "REFERENCE_LIMIT", "full_context", "reference_verdicts", "reference_cost"]
 
 
 def full_context(test, mem, sched):
@@ -34,11 +25,19 @@ def full_context(test, mem, sched):
 
 
 def event_detection(ctx, ev) -> Detection:
+    from ..model import op_cycle
+
     seg = ctx.sched.segments[ev.seg]
     up = seg.order != "down"       # canonical: ⇕ as ⇑
     pos = ctx.rank[ev.word] if up else ctx.n - 1 - ctx.rank[ev.word]
-    cycle = seg.start + pos * seg.per_address + seg.op_offsets[ev.op]
-    return Detection(seg.run, seg.element, ev.op, ev.word, cycle)
+    return Detection(seg.run, seg.element, ev.op, ev.word, op_cycle(seg, ev.op, pos))
+
+
+def reference_cost(test, sched, n_instances: int) -> int:
+    """Op-steps the reference needs for ``n_instances`` (4 initial values at most; a ⇕
+    element runs each carried state both ways, counted as 2 more runs)."""
+    n_any = sum(e.order == "any" for e in test.elements)
+    return n_instances * max(1, sched.ops) * 4 * (3 if n_any else 1)
 
 
 def reference_verdicts(test, mem, instances, sched=None, limit=REFERENCE_LIMIT):
@@ -47,24 +46,15 @@ def reference_verdicts(test, mem, instances, sched=None, limit=REFERENCE_LIMIT):
 
     sched = sched or schedule(test, mem)
     instances = list(instances)
-    cost = len(instances) * max(1, sched.ops) * 4 * (2 ** sum(e.order == "any" for e in test.elements))
+    cost = reference_cost(test, sched, len(instances))
     if cost > limit:
         raise EngineLimitError(
             f"the reference simulator would take about {cost:.2g} steps here; use it on a smaller "
             "memory or fault list (it is meant for audits), or use the default engine"
         )
-    dram = [i for i, x in enumerate(instances) if x.kind.family in ("retention", "disturb")]
-    out = [None] * len(instances)
-    if dram:
-        from .dram_reference import dram_reference_verdicts
-
-        for i, v in zip(dram, dram_reference_verdicts(test, mem, [instances[i] for i in dram], sched)):
-            out[i] = v
-    if len(dram) == len(instances):
-        return out
     ctx = full_context(test, mem, sched)
-    for i, inst in enumerate(instances):
-        if out[i] is None:
-            det, ev = verdict(ctx, inst)
-            out[i] = (det, event_detection(ctx, ev) if ev is not None else None)
+    out = []
+    for inst in instances:
+        det, ev = verdict(ctx, inst)
+        out.append((det, event_detection(ctx, ev) if ev is not None else None))
     return out

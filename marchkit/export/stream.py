@@ -230,8 +230,7 @@ class Plan:
     """Everything the expansion of ``test`` on ``mem`` needs, computed once (no vectors)."""
 
     def __init__(self, test, mem, physical: bool = False):
-        from ..engine.core import determined_reads
-        from ..model import address_order, background_names, schedule
+        from ..model import address_order, background_names, compared_reads, schedule
 
         self.test = test
         self.mem = mem
@@ -255,7 +254,7 @@ class Plan:
             for w in words:
                 table.extend((w, w ^ self.all_ones))
             self.words.append(table)
-        determined = determined_reads(self.sched)
+        determined = compared_reads(self.sched)
         segs = []
         for si, s in enumerate(self.sched.segments):
             if s.element is None:

@@ -21,47 +21,55 @@ from typing import Iterator
 import numpy as np
 
 from ..errors import FaultSpecError
-from .primitives import (AF, CFID, CFIN, CFST, CLASSIC_CLASSES, DYNAMIC, DYNAMIC_CLASSES, SAF,
-                         SINGLE_CLASSES, SOF, STATIC, STATIC_CLASSES, TF, FaultKind, drf_kinds,
-                         primitive)
+from ..units import format_seconds  # noqa: F401  (re-exported)
+from .registry import FAMILIES, family_of
 
 DEFAULT_RETENTION = (Fraction(1, 1000),)
-MAX_EXPLICIT_PAIRS = 48_000_000     # directed pairs held as arrays (~3 GB at peak while grading)
+MAX_EXPLICIT_PAIRS = 48_000_000     # directed pairs listed as arrays (enumeration, mixed sampled scopes only)
+GROUP_WORDS = ("static", "classic", "retention", "dynamic", "all")
 
 
-def format_seconds(s: Fraction) -> str:
-    s = Fraction(s)
-    for unit, scale in (("s", 1), ("ms", 1000), ("us", 10**6), ("ns", 10**9)):
-        v = s * scale
-        if v >= 1 or unit == "ns":
-            if v.denominator == 1:
-                return f"{v.numerator}{unit}"
-            return f"{float(v):.15g}{unit}"
-    return f"{float(s)}s"  # pragma: no cover
+def _group(word: str, retention) -> tuple[FaultKind, ...]:
+    """The kinds of a selection word, every family's contribution in slot order."""
+    parts = []
+    for i, f in enumerate(FAMILIES):
+        for slot, kinds in f.groups(retention).get(word, []):
+            parts.append((slot, i, kinds))
+    out: dict[str, FaultKind] = {}
+    for _, _, kinds in sorted(parts, key=lambda x: (x[0], x[1])):
+        for k in kinds:
+            out.setdefault(k.text, k)
+    return tuple(out.values())
+
+
+def all_classes() -> tuple[str, ...]:
+    """Every class name, family by family in registry order."""
+    out: dict[str, None] = {}
+    for f in FAMILIES:
+        for c in f.classes:
+            out.setdefault(c, None)
+    return tuple(out)
 
 
 def _class_kinds(name: str, retention) -> tuple[FaultKind, ...] | None:
-    low = name.lower()
-    every = STATIC_CLASSES + CLASSIC_CLASSES + ("DRF",) + DYNAMIC_CLASSES
+    every = all_classes()
     if name in every:              # exact spelling first: dRDF (dynamic) is not DRDF
         c = name
-    else:                          # then any case, the static and classic names winning
+    else:                          # then any case, the earlier-registered names winning
         classes: dict[str, str] = {}
         for c in every:
             classes.setdefault(c.lower(), c)
-        if low not in classes:
+        if name.lower() not in classes:
             return None
-        c = classes[low]
-    if c in STATIC_CLASSES:
-        return tuple(k for k in STATIC if k.cls == c)
-    if c in DYNAMIC_CLASSES:
-        return tuple(k for k in DYNAMIC if k.cls == c)
-    return {"SAF": SAF, "TF": TF, "SOF": SOF, "AF": AF, "CFin": CFIN, "CFid": CFID,
-            "CFst": CFST, "DRF": drf_kinds(retention)}[c]
+        c = classes[name.lower()]
+    for f in FAMILIES:
+        if c in f.classes:
+            return tuple(f.class_kinds(c, retention))
+    return None  # pragma: no cover
 
 
 def all_kinds(retention=DEFAULT_RETENTION) -> tuple[FaultKind, ...]:
-    return STATIC + SAF + SOF + AF + CFIN + CFID + drf_kinds(retention) + DYNAMIC
+    return _group("all", retention)
 
 
 @dataclass(frozen=True)
@@ -86,34 +94,36 @@ def select_faults(spec: str = "static", retention=DEFAULT_RETENTION, thresholds=
     for raw in _split(spec):
         part = raw.strip()
         low = part.lower()
-        if low == "static":
-            got = STATIC
-        elif low == "classic":
-            got = SAF + TF + SOF + AF + CFIN + CFID + CFST
-        elif low == "retention":
-            got = drf_kinds(retention)
-        elif low == "dynamic":
-            got = DYNAMIC
-        elif low == "disturb":
+        got = None
+        if low == "disturb":
             got = disturb_kinds(thresholds)
         elif low == "dram":                 # retention with refresh and disturb
             got = retention_kinds(retention) + disturb_kinds(thresholds)
-        elif low == "all":
-            got = all_kinds(retention)
-        elif part.startswith("<"):
-            got = (primitive(part),)
+        elif low in GROUP_WORDS:
+            got = _group(low, retention)
         else:
+            for f in FAMILIES:
+                k = f.parse_kind(part)
+                if k is not None:
+                    got = (k,)
+                    break
+        if got is None:
             got = _class_kinds(part, retention)
-            if got is None:
-                named = {k.text.lower(): k for k in all_kinds(retention) + disturb_kinds(thresholds)}
-                if low in named:
-                    got = (named[low],)
-                else:
-                    raise FaultSpecError(
-                        f"unknown fault selection {part!r}; use static, classic, retention, dynamic, disturb, dram, all, "
-                        "a class (" + ", ".join(STATIC_CLASSES + ("SAF", "SOF", "AF", "CFin", "CFid", "DRF") + DYNAMIC_CLASSES) +
-                        "), a kind such as SA0 or AF:alias, or a primitive such as <0w1/0/->"
-                    )
+        if got is None:
+            named = {}
+            for f in FAMILIES:
+                for k in f.kinds(retention):
+                    named.setdefault(k.text.lower(), k)
+            for k in disturb_kinds(thresholds):
+                named.setdefault(k.text.lower(), k)
+            if low in named:
+                got = (named[low],)
+            else:
+                raise FaultSpecError(
+                    f"unknown fault selection {part!r}; use {', '.join(GROUP_WORDS[:-1])}, disturb, dram, all, "
+                    "a class (" + ", ".join(all_classes()) +
+                    "), a kind such as SA0 or AF:alias, or a primitive such as <0w1/0/->"
+                )
         for k in got:
             kinds.setdefault(k.text, k)
     if not kinds:
@@ -193,7 +203,8 @@ def _check_pair_budget(mem) -> None:
 
         raise EngineLimitError(
             f"{n:,} cells have about {n * mem.neighbours:,} neighbour pairs, more than marchkit "
-            f"lists at once ({MAX_EXPLICIT_PAIRS:,}); grade a sub-array, or use --pairs sample:K or all"
+            f"lists at once ({MAX_EXPLICIT_PAIRS:,}); grading counts them without a list, but "
+            "naming every instance (or mixing neighbours with sample:K) needs one"
         )
 
 
@@ -261,61 +272,53 @@ def word_pairs(mem, scope: PairScope) -> tuple[np.ndarray, np.ndarray] | None:
     return a, b
 
 
+def cell_pair_count(mem, scope: PairScope) -> int:
+    """Number of ordered cell pairs in ``scope``, in closed form for ``all``, ``neighbours``
+    and ``word`` (and their unions); sampled scopes are listed."""
+    from ..model.geometry import neighbour_pair_count, same_word_neighbour_pair_count
+
+    if scope.is_all:
+        return mem.cells * (mem.cells - 1)
+    kinds = {p[0] for p in scope.parts}
+    if kinds <= {"neighbours", "word"}:
+        nb = neighbour_pair_count(mem) if "neighbours" in kinds else 0
+        if "word" in kinds:
+            nb += mem.words * mem.bits * (mem.bits - 1)
+            if "neighbours" in kinds:
+                nb -= same_word_neighbour_pair_count(mem)
+        return nb
+    return int(cell_pairs(mem, scope)[0].size)
+
+
+def word_pair_count(mem, scope: PairScope) -> int:
+    """Number of ordered pairs of distinct words in ``scope`` (closed form but for samples)."""
+    from ..model.geometry import neighbour_word_pair_count
+
+    if scope.is_all:
+        return mem.words * (mem.words - 1)
+    kinds = {p[0] for p in scope.parts}
+    if kinds <= {"neighbours", "word"}:
+        return neighbour_word_pair_count(mem) if "neighbours" in kinds else 0
+    return int(word_pairs(mem, scope)[0].size)
+
+
 def instance_count(kind: FaultKind, mem, scope: PairScope) -> int:
     """Exact number of instances of ``kind`` on ``mem`` (no enumeration)."""
-    if kind.family == "af":
-        if kind.arity == 1:
-            return mem.words
-        pairs = word_pairs(mem, scope)
-        return mem.words * (mem.words - 1) if pairs is None else int(pairs[0].size)
-    if kind.arity == 1:
-        return mem.cells
-    pairs = cell_pairs(mem, scope)
-    return mem.cells * (mem.cells - 1) if pairs is None else int(pairs[0].size)
+    return family_of(kind).instance_count(kind, mem, scope)
 
 
 @dataclass(frozen=True)
 class Instance:
-    """One fault at one place: ``sites`` are cell indices (word·bits + bit), or for AF words."""
+    """One fault at one place: ``sites`` are cell indices (word·bits + bit), or words for
+    families whose :attr:`~marchkit.faults.family.Family.site` is ``words``."""
 
     kind: FaultKind
     sites: tuple[int, ...]
 
     def text(self, mem) -> str:
-        if self.kind.family == "af":
-            names = "ab"
-            return f"{self.kind.text} " + " ".join(f"{names[i]}={s}" for i, s in enumerate(self.sites))
-
-        def cell(c):
-            w, b = divmod(c, mem.bits)
-            return f"w{w}" if mem.bits == 1 else f"w{w}.b{b}"
-
-        if len(self.sites) == 1:
-            return f"{self.kind.text} v={cell(self.sites[0])}"
-        return f"{self.kind.text} a={cell(self.sites[0])} v={cell(self.sites[1])}"
+        return family_of(self.kind).instance_text(self, mem)
 
 
 def enumerate_instances(kind: FaultKind, mem, scope: PairScope) -> Iterator[Instance]:
     """Every instance of ``kind`` on ``mem``, in a fixed order (for audits and small arrays)."""
-    if kind.family == "af" and kind.arity == 1:
-        for w in range(mem.words):
-            yield Instance(kind, (w,))
-        return
-    if kind.arity == 1:
-        for c in range(mem.cells):
-            yield Instance(kind, (c,))
-        return
-    if kind.family == "af":
-        pairs = word_pairs(mem, scope)
-        n = mem.words
-    else:
-        pairs = cell_pairs(mem, scope)
-        n = mem.cells
-    if pairs is None:
-        for a in range(n):
-            for v in range(n):
-                if a != v:
-                    yield Instance(kind, (a, v))
-    else:
-        for a, v in zip(pairs[0].tolist(), pairs[1].tolist()):
-            yield Instance(kind, (a, v))
+    return family_of(kind).enumerate_instances(kind, mem, scope)

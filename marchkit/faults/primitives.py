@@ -1,5 +1,6 @@
-"""Fault kinds: the static fault primitives, the classic models, stuck-open, address-decoder
-and data-retention faults — each a value with a canonical text form.
+"""The primitives family: the static and dynamic fault primitives and the classic models
+built from them (SAF, TF, CFin, CFid, CFst) — each a value with a canonical text form —, and
+the :class:`FaultKind` value every family uses.
 
 Fault primitives use the ``<S/F/R>`` and ``<Sa;Sv/F/R>`` notation of van de Goor & Al-Ars,
 "Functional memory faults: a formal notation and a taxonomy", VTS 2000: ``S`` the
@@ -15,6 +16,7 @@ from dataclasses import dataclass, field
 from fractions import Fraction
 
 from ..errors import FaultSpecError
+from .family import Family
 
 
 @dataclass(frozen=True)
@@ -119,8 +121,10 @@ def parse_rule(text: str) -> Rule:
 class FaultKind:
     """A fault model at the level of one instance's behaviour.
 
-    ``family``: ``rules`` (a set of primitives acting together), ``sof``, ``af`` or ``drf``.
-    ``arity``: cells (or, for ``af``, words) one instance involves.
+    ``family``: the name of its family in :mod:`marchkit.faults.registry` — ``rules`` (a
+    set of primitives acting together), ``sof``, ``af``, ``drf``, …
+    ``arity``: sites (cells, or for address families words) one instance involves.
+    ``params``: data of families that need more than the fields below (free form, hashable).
     """
 
     text: str
@@ -132,6 +136,7 @@ class FaultKind:
     drf_value: int | None = None   # the value the cell loses
     tau: Fraction | None = None    # seconds
     threshold: int | None = None   # disturb: aggressor-row activations that flip the victim
+    params: tuple = ()
     description: str = field(default="", compare=False)
 
     def __str__(self) -> str:
@@ -260,31 +265,99 @@ CFID = (
     FaultKind("CFid<↓;0>", "CFid", "rules", 2, (_r("<1w0;1/0/->"),)),
     FaultKind("CFid<↓;1>", "CFid", "rules", 2, (_r("<1w0;0/1/->"),)),
 )
-SOF = (FaultKind("SOF", "SOF", "sof", 1,
-                 description="stuck-open: writes do not reach the cell; a read returns the sense amplifier's previous value"),)
-AF = (
-    FaultKind("AF:none", "AF", "af", 1, af="none",
-              description="address a selects no cell (so cell a is selected by no address); a read of a returns a fixed value, all bits alike, unknown which"),
-    FaultKind("AF:alias", "AF", "af", 2, af="alias",
-              description="address b selects cell a instead of cell b (cell a has two addresses, cell b none)"),
-    FaultKind("AF:multi", "AF", "af", 2, af="multi",
-              description="address a selects cells a and b; a read returns the AND of both"),
-    FaultKind("AF:cross", "AF", "af", 2, af="cross",
-              description="addresses a and b both select cells a and b; a read returns the AND of both"),
-)
-
-
-def drf_kinds(taus) -> tuple[FaultKind, ...]:
-    from .catalogue import format_seconds
-
-    out = []
-    for tau in taus:
-        for x in (0, 1):
-            out.append(FaultKind(
-                f"DRF{x}(τ={format_seconds(tau)})", "DRF", "drf", 1, drf_value=x, tau=Fraction(tau),
-                description=f"a cell holding {x} loses it {format_seconds(tau)} after it was last written or read",
-            ))
-    return tuple(out)
-
-
 CLASSIC_CLASSES = ("SAF", "TF", "SOF", "AF", "CFin", "CFid", "CFst")
+
+
+class RulesFamily(Family):
+    """Kinds that are sets of fault primitives acting together (one or two cells)."""
+
+    name = "rules"
+    classes = STATIC_CLASSES + ("SAF", "CFin", "CFid") + DYNAMIC_CLASSES
+    labels = ("aggressor", "victim")
+    short_labels = ("a", "v")
+    needs = {
+        "SF": "needs each cell read after it was written with the value it cannot hold",
+        "TF": "needs a transition write (0w1, 1w0) then a read of that cell",
+        "WDF": "needs a non-transition write (0w0, 1w1) then a read of that cell",
+        "RDF": "needs a read of each cell holding 0 and holding 1",
+        "DRDF": "needs two reads in a row of the victim",
+        "IRF": "needs a read of each cell holding 0 and holding 1",
+        "CFst": "needs victim reads in every aggressor/victim state",
+        "CFds": "needs every aggressor operation (incl. non-transition writes and reads) then a victim read",
+        "CFtr": "needs a victim transition write then read, aggressor in each state",
+        "CFwd": "needs a victim non-transition write then read, aggressor in each state",
+        "CFrd": "needs a victim read with the aggressor in each state",
+        "CFdrd": "needs two victim reads in a row, aggressor in each state",
+        "CFir": "needs a victim read with the aggressor in each state",
+        "SAF": "needs each cell read as 0 and as 1",
+        "CFin": "needs each aggressor transition then a victim read, both positions",
+        "CFid": "needs each aggressor transition, victim in each state, then a victim read",
+        "dRDF": "needs the primitive's two operations back to back in one element, the second a read",
+        "dDRDF": "needs the two operations back to back, then another read before the cell is rewritten",
+        "dIRF": "needs the primitive's two operations back to back in one element, the second a read",
+        "dTF": "needs the two operations back to back (ending in a transition write), then a read",
+        "dWDF": "needs the two operations back to back (ending in a non-transition write), then a read",
+    }
+    where = {
+        "aggressor first": "missed with the aggressor first in ⇑",
+        "victim first": "missed with the victim first in ⇑",
+        "same word": "missed inside a word (try --backgrounds word)",
+    }
+
+    def groups(self, retention):
+        return {
+            "static": [(0, STATIC)],
+            "dynamic": [(0, DYNAMIC)],
+            "classic": [(0, SAF), (1, TF), (4, CFIN), (5, CFID), (6, CFST)],
+            "all": [(0, STATIC), (1, SAF), (4, CFIN), (5, CFID), (7, DYNAMIC)],
+        }
+
+    def class_kinds(self, cls, retention):
+        if cls in STATIC_CLASSES:
+            return tuple(k for k in STATIC if k.cls == cls)
+        if cls in DYNAMIC_CLASSES:
+            return tuple(k for k in DYNAMIC if k.cls == cls)
+        return {"SAF": SAF, "CFin": CFIN, "CFid": CFID}[cls]
+
+    def parse_kind(self, text):
+        return primitive(text) if text.startswith("<") else None
+
+    def init_values(self, kind):
+        return kind.arity
+
+    def describe(self, kind) -> str:
+        if kind.description:
+            return kind.description
+        if len(kind.rules) == 1 and kind.rules[0].then is not None:
+            r = kind.rules[0]
+            o1, o2 = r.vic, r.then
+            first = f"w{o1.val}" if o1.op == "w" else f"r{o1.pre}"
+            second = f"w{o2.val}" if o2.op == "w" else f"r{o2.pre}"
+            out = f"{first} then at once {second} on the cell holding {o1.pre}: it is left {r.f}"
+            return out + (f" and the read returns {r.r}" if r.r is not None else "")
+        if len(kind.rules) == 1:
+            r = kind.rules[0]
+            v = r.vic
+            who = "the cell" if r.agg is None else "the victim"
+            if r.agg is None:
+                cond = ""
+            elif r.agg.op is None:
+                cond = f" while the aggressor holds {r.agg.pre}"
+            else:
+                op = f"w{r.agg.val}" if r.agg.op == "w" else f"r{r.agg.pre}"
+                cond = f" when the aggressor (holding {r.agg.pre}) gets {op}"
+            if v.op is None:
+                s = f"{who} cannot stay {v.pre}: it becomes {r.f}"
+            elif v.op == "w":
+                s = f"writing {v.val} to {who} holding {v.pre} leaves {r.f}"
+            else:
+                s = f"reading {who} holding {v.pre} returns {r.r} and leaves {r.f}"
+            if r.agg is not None and r.agg.op is not None:
+                s = f"{who} holding {v.pre} becomes {r.f}"
+            if r.agg is not None and r.agg.op is None and v.op is None:
+                return f"while the aggressor holds {r.agg.pre}, {who} cannot stay {v.pre}: it becomes {r.f}"
+            return s + cond
+        return ", ".join(r.text for r in kind.rules)
+
+
+FAMILY = RulesFamily()

@@ -81,20 +81,14 @@ class GradeResult:
 
 
 def _structure(inst, mem, rank) -> str:
-    """How the cells of a missed instance sit, in the words the fast engine reports."""
-    if len(inst.sites) == 1:
-        return "single"
-    if inst.kind.family == "af":
-        a, b = inst.sites
-        return "a first" if rank[a] < rank[b] else "b first"
-    wa, wv = (s // mem.bits for s in inst.sites)
-    if wa == wv:
-        return "same word"
-    return "aggressor first" if rank[wa] < rank[wv] else "victim first"
+    """How the sites of a missed instance sit, named by its family (as the fast engine does)."""
+    from ..faults import family_of
+
+    return family_of(inst.kind).structure(inst, mem, rank)
 
 
 def _reference_kinds(test, mem, selection, scope, sched, progress=None, examples=0):
-    from ..engine.fast import KindResult
+    from ..engine.results import KindResult
     from ..engine.reference import reference_verdicts
     from ..faults import enumerate_instances
 

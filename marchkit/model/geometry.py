@@ -230,3 +230,67 @@ def neighbour_graph(mem: Memory):
                     if not g.has_edge((word, bit), (w2, b2)):
                         g.add_edge((word, bit), (w2, b2), direction=names[(dr, dc)])
     return g
+
+
+def neighbour_directions(mem: Memory) -> tuple[tuple[int, int], ...]:
+    """(row step, column step) of the physical neighbours: N/S/E/W, and the diagonals with
+    ``neighbours = 8``."""
+    return DIRECTIONS_8 if mem.neighbours == 8 else DIRECTIONS_4
+
+
+def neighbour_pair_count(mem: Memory) -> int:
+    """Number of ordered neighbour cell pairs (what :func:`neighbour_edges` lists), in closed
+    form: for each direction, the cells whose neighbour that way is inside the array."""
+    rows, cols = mem.rows, mem.columns
+    return sum(max(0, rows - abs(dr)) * max(0, cols - abs(dc)) for dr, dc in neighbour_directions(mem))
+
+
+def same_word_neighbour_pair_count(mem: Memory) -> int:
+    """Ordered neighbour cell pairs inside one word: with ``mux = 1`` the bits of a word sit
+    side by side (E/W neighbours, and diagonal ones never share a row); otherwise none."""
+    if mem.mux != 1:
+        return 0
+    return 2 * mem.rows * max(0, mem.columns - 1)
+
+
+def neighbour_word_offsets(mem: Memory) -> tuple[tuple[int, int], ...]:
+    """(row step, slot step) from a word to the words it has a neighbour cell in.
+
+    A word sits in row ``p // mux`` at slot ``p % mux``, its bit ``b`` in column
+    ``b·mux + slot``; cells of two words are neighbours when their rows differ by ``dr`` and
+    their columns by a ``dc`` allowed for ``dr``.  Two words at (dr, ds) have such cells iff
+    ``db·mux + ds = dc`` for some bit difference ``|db| < bits`` — so only ds ∈ {0, ±1,
+    ±(mux−1)} can occur.  Distinct offsets reach distinct words (|ds| < mux), so the word
+    pairs ``(p, p + dr·mux + ds)`` over these offsets (row and slot in range) are exactly the
+    distinct word pairs with a neighbouring cell pair, each once."""
+    mux, bits = mem.mux, mem.bits
+    dcs: dict[int, set] = {}
+    for dr, dc in neighbour_directions(mem):
+        dcs.setdefault(dr, set()).add(dc)
+    out = []
+    for dr in sorted(dcs):
+        for ds in sorted({0, 1, -1, mux - 1, 1 - mux}):
+            if (dr, ds) == (0, 0) or abs(ds) >= mux:
+                continue
+            if any((dc - ds) % mux == 0 and abs((dc - ds) // mux) <= bits - 1 for dc in dcs[dr]):
+                out.append((dr, ds))
+    return tuple(out)
+
+
+def neighbour_word_pair_count(mem: Memory) -> int:
+    """Number of ordered pairs of distinct words with a neighbouring cell pair (closed form
+    over :func:`neighbour_word_offsets`)."""
+    return sum(max(0, mem.rows - abs(dr)) * (mem.mux - abs(ds)) for dr, ds in neighbour_word_offsets(mem))
+
+
+def neighbour_word_pairs_at(mem: Memory, dr: int, ds: int, row0: int, row1: int):
+    """Physical word pairs ``(p, q)`` at offset (dr, ds) with ``p`` in rows [row0, row1),
+    both inside the array: two (m,) int64 arrays."""
+    r0, r1 = max(row0, -dr), min(row1, mem.rows - dr)
+    s0, s1 = max(0, -ds), mem.mux - max(0, ds)
+    if r1 <= r0 or s1 <= s0:
+        return np.empty(0, np.int64), np.empty(0, np.int64)
+    r = np.arange(r0, r1, dtype=np.int64)[:, None]
+    s = np.arange(s0, s1, dtype=np.int64)[None, :]
+    p = (r * mem.mux + s).ravel()
+    return p, p + dr * mem.mux + ds

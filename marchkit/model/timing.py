@@ -6,43 +6,12 @@ idle cycles.  The test runs once per data background, one run after the other.
 
 from __future__ import annotations
 
-import math
-import re
 from dataclasses import dataclass
 from functools import cached_property
 from fractions import Fraction
 
-from ..errors import ModelError
 
-_UNITS = {"hz": 1, "khz": 10**3, "mhz": 10**6, "ghz": 10**9}
-
-
-def parse_frequency(text: str | float | int) -> Fraction:
-    """``100MHz``, ``1.2 GHz``, ``250e6`` (Hz) → Hz as an exact fraction."""
-    if isinstance(text, (int, float)):
-        f = Fraction(str(text))
-    else:
-        m = re.fullmatch(r"\s*([0-9]+(?:\.[0-9]*)?(?:[eE][+-]?[0-9]+)?)\s*([kKmMgG]?[hH][zZ])?\s*", text)
-        if not m:
-            raise ModelError(f"clock {text!r} is not a frequency such as 100MHz")
-        f = Fraction(m.group(1)) * _UNITS[(m.group(2) or "hz").lower()]
-    if f <= 0:
-        raise ModelError("the clock frequency must be positive")
-    return f
-
-
-def parse_duration(text: str) -> Fraction:
-    """``10ms``, ``64 us``, ``2s`` → seconds."""
-    m = re.fullmatch(r"\s*([0-9]+(?:\.[0-9]*)?(?:[eE][+-]?[0-9]+)?)\s*(ns|us|µs|ms|s)\s*", str(text))
-    if not m:
-        raise ModelError(f"{text!r} is not a duration such as 10ms")
-    unit = {"ns": Fraction(1, 10**9), "us": Fraction(1, 10**6), "µs": Fraction(1, 10**6),
-            "ms": Fraction(1, 1000), "s": Fraction(1)}[m.group(2)]
-    return Fraction(m.group(1)) * unit
-
-
-def seconds_to_cycles(seconds: Fraction, clock_hz: Fraction) -> int:
-    return math.ceil(Fraction(seconds) * clock_hz)
+from ..units import parse_duration, parse_frequency, seconds_to_cycles  # noqa: F401  (re-exported)
 
 
 EXPAND_LIMIT = 1 << 16      # operations per address visit the spelled-out views may hold
@@ -165,3 +134,26 @@ def schedule(test, mem, runs: int | None = None) -> Schedule:
                 segs.append(Segment(run, ii, None, None, t, 0, (), d))
                 t += d
     return Schedule(tuple(segs), t, ops, mem.clock_hz, runs)
+
+
+def compared_reads(sched) -> set[tuple[int, int]]:
+    """(segment index, op index) of the reads whose value is compared: those after the test's
+    first write (reads before it expect nothing, the cells never having been written)."""
+    out = set()
+    seen_write = False
+    for si, seg in enumerate(sched.segments):
+        for k, kind in enumerate(seg.op_kinds):
+            if kind == "w":
+                seen_write = True
+            elif seen_write:
+                out.add((si, k))
+    return out
+
+
+def op_cycle(seg, k: int, pos):
+    """Cycle of op ``k`` of segment ``seg`` at position ``pos`` of the order the segment runs in
+    (``pos`` an int or an integer numpy array)."""
+    for r in seg.runs:                   # closed form: no spelled-out repeats
+        if r.first <= k < r.first + r.repeat:
+            return seg.start + pos * seg.per_address + r.offset + (k - r.first) * r.each
+    raise IndexError(k)
