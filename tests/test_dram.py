@@ -287,3 +287,52 @@ def test_retention_time_must_exceed_a_row_cycle():
     mem = make_memory(16, clock="100MHz", refresh="1ms", read_cycles=2)
     with pytest.raises(FaultSpecError, match="row cycle"):
         grade(parse_notation("{⇑(w0); ⇑(r0)}"), mem, faults="retention", retention=[Fraction(2, 10**8)])
+
+
+# ---------------------------------------------------------------------------------------
+# spread of retention times, CLI
+
+
+def test_lognormal_spread_points_are_equal_probability_quantiles():
+    from statistics import NormalDist
+
+    from marchkit.grade.spread import expected_caught, parse_spread, per_tau
+
+    sp = parse_spread("lognormal:100ms:0.5:9")
+    assert len(sp.taus) == 9
+    assert sp.taus[4] == Fraction(1, 10)                    # the middle point is the median
+    # log-normal: ln τ is normal (common practice, no source); points at (i + ½)/K quantiles
+    for i, t in enumerate(sp.taus):
+        z = NormalDist().inv_cdf((i + 0.5) / 9)
+        assert abs(float(t) - 0.1 * np.exp(0.5 * z)) / float(t) < 5e-3
+    mem = make_memory(256, 1, mux=16, clock="100MHz", refresh="64ms")
+    r = grade(parse_notation("{⇕(w0); Del(100ms); ⇑(r0,w1); Del(100ms); ⇓(r1)}"), mem,
+              faults="retention", retention=sp.taus)
+    rows = per_tau(r.kinds)
+    # a 100 ms pause with refresh suspended catches every τ ≤ 100 ms and none above: 5 of 9
+    assert [row.coverage for row in rows] == [1.0] * 5 + [0.0] * 4
+    assert expected_caught(rows, sp.taus) == pytest.approx(5 / 9)
+
+
+def test_cli_dram_grade_and_bad_input(cli):
+    code, out, err = cli("grade", "{⇕(w0); Del(100ms); ⇑(r0,w1); Del(100ms); ⇓(r1)}", "--words", "256",
+                         "--mux", "16", "--refresh", "64ms", "--faults", "retention",
+                         "--retention-spread", "lognormal:100ms:0.5:9")
+    assert code == 0, err
+    assert "weak cells caught (expected, retention spread lognormal:100ms:0.5:9, 9 points): 55.56%" in out
+    assert "refresh 64ms distributed" in out and "suspended during delays" in out
+    code, out, err = cli("grade", "{⇑(w0); ⇑(r0^5000); ⇑(r0)}", "--words", "64", "--refresh", "1ms",
+                         "--clock", "1GHz", "--faults", "disturb", "--disturb-threshold", "4.8k")
+    assert code == 0, err
+    assert "disturb" in out
+    for args, msg in (
+        (("--refresh", "10ns"), "shorter than refreshing"),               # period < rows × row cycle
+        (("--faults", "disturb", "--disturb-threshold", "0"), "at least 1 activation"),
+        (("--faults", "disturb", "--disturb-threshold", "-3"), "at least 1 activation"),
+        (("--retention-spread", "lognormal:1ms"), "lognormal:MEDIAN:SIGMA"),
+    ):
+        code, out, err = cli("grade", "{⇑(w0); ⇑(r0)}", "--words", "64", *args)
+        assert code == 2, (args, out, err)
+        assert msg in err and "Traceback" not in err
+    code, out, err = cli("grade", "{⇑(w0); ⇑(r0^1000000001)}", "--words", "64")
+    assert code == 2 and "out of range" in err

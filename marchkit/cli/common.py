@@ -7,6 +7,15 @@ import sys
 import tempfile
 from pathlib import Path
 
+def thresholds_from_args(args):
+    t = getattr(args, "disturb_threshold", None)
+    if t is None:
+        return None
+    from ..faults.dram import parse_thresholds
+
+    return parse_thresholds(t)
+
+
 DEMO_MEMORY = dict(
     name="kestrel_l1_sram", words=1024, bits=16, mux=4, clock="200MHz",
     order="linear", backgrounds=("solid",),
@@ -76,6 +85,13 @@ def add_fault_options(p) -> None:
                    help="cell pairs for two-cell faults: all, neighbours, word, sample:K[:SEED] (comma list = union; default neighbours)")
     g.add_argument("--retention", default="1ms", metavar="TIMES",
                    help="DRF leakage times τ, comma list (default 1ms)")
+    g.add_argument("--retention-spread", metavar="SPREAD",
+                   help="grade a spread of retention times and report the expected fraction of weak cells "
+                        "caught: lognormal:MEDIAN:SIGMA[:POINTS] or a comma list of times (replaces --retention)")
+    g.add_argument("--disturb-threshold", metavar="N", default=None,
+                   help="activations of a neighbour row that flip a disturb victim (comma list; default "
+                        "139000, about the first error on DDR3 per Kim et al., ISCA 2014; LPDDR4: as few as 4.8k, "
+                        "Kim et al., ISCA 2020)")
     g.add_argument("--engine", choices=("fast", "reference"), default="fast",
                    help="fast (default) or the literal reference simulator (audits; small memories only)")
 
@@ -83,6 +99,10 @@ def add_fault_options(p) -> None:
 def retention_from_args(args):
     from ..model import parse_duration
 
+    if getattr(args, "retention_spread", None):
+        from ..grade.spread import parse_spread
+
+        return parse_spread(args.retention_spread).taus
     return tuple(parse_duration(t) for t in args.retention.split(",") if t.strip())
 
 
