@@ -336,3 +336,74 @@ def test_cli_dram_grade_and_bad_input(cli):
         assert msg in err and "Traceback" not in err
     code, out, err = cli("grade", "{⇑(w0); ⇑(r0^1000000001)}", "--words", "64")
     assert code == 2 and "out of range" in err
+
+
+# ---------------------------------------------------------------------------------------
+# export of hammer-length repeats
+
+def _stil_loops(path):
+    """(repeat, V text) pairs read back by the independent parser semi-ate-stil."""
+    mod = pytest.importorskip("Semi_ATE.STIL.parsers.STILParser")
+    p = mod.STILParser(str(path))
+    tree = p.parse_syntax()
+    assert tree is not None, p.err_msg
+    p.parse_semantic()
+    assert p.is_parsing_done, p.err_msg
+    out = []
+
+    def walk(node, repeat):
+        for st in node.children:
+            if not hasattr(st, "data"):
+                continue
+            name = str(st.data)
+            if name.endswith("__v_stmt"):
+                blocks = list(st.find_pred(lambda t: str(t.data).endswith("__vec_data_block")))
+                out.append((repeat, tuple((str(b.children[0]), str(b.children[1])) for b in blocks)))
+            elif name.endswith("__l_stmt"):
+                count = int(next(tok for tok in st.children if str(getattr(tok, "type", "")).endswith("LOOP_COUNT")))
+                walk(st, repeat * count)
+            elif name.endswith("pattern_statement") or name == "pattern_block":
+                walk(st, repeat)
+
+    for pb in tree.find_data("pattern_block"):
+        walk(pb, 1)
+    return out
+
+
+@pytest.mark.parametrize("read_cycles", [1, 2])
+def test_stil_loops_hammer_repeats_and_reads_back(tmp_path, read_cycles):
+    from marchkit.export import Plan, export
+
+    mem = make_memory(8, 2, read_cycles=read_cycles)
+    long_t = parse_notation("{⇑(w0); ⇑(r0^70000,w1); ⇓(r1)}")
+    short_t = parse_notation("{⇑(w0); ⇑(r0^3,w1); ⇓(r1)}")
+    a, b = tmp_path / "long.stil", tmp_path / "short.stil"
+    export(long_t, mem, str(a))
+    export(short_t, mem, str(b))
+    got_long, got_short = _stil_loops(a), _stil_loops(b)
+    assert sum(n for n, _ in got_long) == Plan(long_t, mem).cycles == 8 + 8 * (70000 * read_cycles + 1) + 8 * read_cycles
+    # the same vectors, the loop of 70000 copies standing where 3 copies are spelled out
+    flat_long, body = [], []
+    for n, v in got_long + [(1, None)]:
+        if n == 70000:                  # the vectors of one loop body, in order
+            body.append(v)
+            continue
+        flat_long += body * 3
+        body = []
+        if v is not None:
+            flat_long += [v] * n
+    flat_short = [v for n, v in got_short for _ in range(n)]
+    assert flat_long == flat_short
+    assert a.stat().st_size < 10_000
+
+
+def test_cycle_by_cycle_formats_refuse_hammer_repeats(tmp_path, cli):
+    for fmt in ("csv", "jsonl", "vcd", "hex"):
+        out = tmp_path / f"p.{fmt}"
+        code, _, err = cli("export", "{⇑(w0); ⇑(r0^1000000,w1); ⇓(r1)}", "--words", "8", "--format", fmt, "-o", str(out))
+        assert code == 2 and "export it as stil" in err, (fmt, err)
+        assert not out.exists()                                       # nothing half-written
+    code, out, err = cli("export", "{⇑(w0); ⇑(r0^1000000000,w1); ⇓(r1)}", "--words", "1024", "--format", "stil",
+                         "-o", str(tmp_path / "h.stil"))
+    assert code == 0, err
+    assert (tmp_path / "h.stil").stat().st_size < 1_000_000            # grows with words, not repeats

@@ -136,18 +136,37 @@ def schedule(test, mem, runs: int | None = None) -> Schedule:
     return Schedule(tuple(segs), t, ops, mem.clock_hz, runs)
 
 
+def first_write(sched) -> tuple[int, int] | None:
+    """(segment index, op index) of the test's first write, or None."""
+    for si, seg in enumerate(sched.segments):
+        for r in seg.runs:
+            if r.kind == "w":
+                return si, r.first
+    return None
+
+
 def compared_reads(sched) -> set[tuple[int, int]]:
     """(segment index, op index) of the reads whose value is compared: those after the test's
-    first write (reads before it expect nothing, the cells never having been written)."""
+    first write (reads before it expect nothing, the cells never having been written).
+    Segments whose visits are too long to spell out (:data:`EXPAND_LIMIT`) are left out: ask
+    :func:`is_compared` about them."""
     out = set()
-    seen_write = False
+    fw = first_write(sched)
+    if fw is None:
+        return out
     for si, seg in enumerate(sched.segments):
-        for k, kind in enumerate(seg.op_kinds):
-            if kind == "w":
-                seen_write = True
-            elif seen_write:
-                out.add((si, k))
+        if seg.ops_per_visit > EXPAND_LIMIT:
+            continue
+        for r in seg.runs:
+            if r.kind == "r":
+                out.update((si, k) for k in range(r.first, r.first + r.repeat) if (si, k) > fw)
     return out
+
+
+def is_compared(sched, si: int, k: int) -> bool:
+    """Whether read ``k`` of segment ``si`` is compared (closed form of :func:`compared_reads`)."""
+    fw = first_write(sched)
+    return fw is not None and (si, k) > fw
 
 
 def op_cycle(seg, k: int, pos):
