@@ -250,3 +250,20 @@ def test_dynamic_read_faults_need_back_to_back_operations():
     apart = grade(parse_notation("{⇕(w0); ⇑(w1); ⇑(r1)}"), mem, "<0w1r1/0/0>", "all")
     together = grade(parse_notation("{⇕(w0); ⇑(w1,r1)}"), mem, "<0w1r1/0/0>", "all")
     assert apart.total.detected == 0 and together.total.coverage == 1.0
+
+
+def test_arrays_too_large_for_the_engine_are_refused_before_work(cli):
+    # 2^26 words of 1024 bits: refused from the sizes alone (exit 2, a clear message naming the limit)
+    code, out, err = cli("grade", "March SS", "--words", str(1 << 26), "--bits", "1024")
+    assert code == 2 and "GiB of arrays" in err and "Traceback" not in err
+
+
+def test_64_mbit_neighbour_counts_need_no_pair_list():
+    # the neighbour pairs of a 2^20 x 64 array (more than the 48 M pairs a list may hold) are
+    # counted on the grid: closed form 2·(R−1)·C + 2·R·(C−1) + 4·(R−1)·(C−1) ordered pairs for an
+    # R × C grid with 8 neighbours (common practice, no source)
+    from marchkit.faults import cell_pair_count, parse_pairs
+
+    mem = make_memory(1 << 20, 64)
+    R, C = mem.rows, mem.columns
+    assert cell_pair_count(mem, parse_pairs("neighbours")) == 2 * (R - 1) * C + 2 * R * (C - 1) + 4 * (R - 1) * (C - 1)

@@ -132,7 +132,7 @@ def run(args) -> int:
 
 def _cov_text(cov: float | None, detected: int | None = None, instances: int | None = None) -> str:
     """Coverage in % for a table cell; a partial coverage never shows as 100 or 0."""
-    from ..report.compare import percent_text
+    from ..units import percent_text
 
     if cov is None:
         return "[dim]n/a[/dim]"
@@ -147,7 +147,7 @@ def _rate(v: float) -> str:
 def show_comparison(cmp, con) -> None:
     from rich.table import Table
 
-    from ..report.compare import format_time
+    from ..units import format_time
 
     rows = list(cmp.rows)
     n_inst = rows[0].instances if rows else 0

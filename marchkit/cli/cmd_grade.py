@@ -28,14 +28,13 @@ def register(sub):
 
 
 def fmt_time(seconds: float) -> str:
-    for unit, scale in (("s", 1), ("ms", 1e3), ("µs", 1e6), ("ns", 1e9)):
-        if seconds * scale >= 1 or unit == "ns":
-            return f"{seconds * scale:.4g} {unit}"
-    return f"{seconds} s"  # pragma: no cover
+    from ..units import format_time
+
+    return format_time(seconds)
 
 
 def fmt_clock(hz) -> str:
-    from ..report.compare import format_frequency
+    from ..units import format_frequency
 
     return format_frequency(hz)
 
@@ -168,7 +167,7 @@ def show_result(res, con, primitives=False) -> None:
     table.add_column("first found in", no_wrap=True)
     table.add_column("all found by", no_wrap=True)
     table.add_column("why some are missed")
-    from ..report.compare import percent_text
+    from ..units import percent_text
 
     def pct(cov, d, n):   # a partial coverage never reads 100 % or 0 %
         return percent_text(cov, 2, d, n) + "%"

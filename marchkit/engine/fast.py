@@ -148,29 +148,6 @@ def sweep_orders(prep, reach, transition):
     return out
 
 
-# ---------------------------------------------------------------------------------------
-# parallel grading: a pure function of (engine, family) run in forked workers
-
-_FORKED: dict = {}
-
-
-def _family_work(fam):
-    engine, fams, scope = _FORKED["job"]
-    return engine.grade_family(fam, fams[fam], scope)
-
-
-def _default_workers(prep, n_steps: int) -> int:
-    import multiprocessing
-    import os
-    import threading
-
-    if n_steps < 2 or prep.n * prep.B < (1 << 18) or (os.cpu_count() or 1) < 2:
-        return 1
-    if "fork" not in multiprocessing.get_all_start_methods() or threading.active_count() > 1:
-        return 1
-    return 2
-
-
 REPEAT_TRANSIENT = 8     # copies after which a repeated operation's effect is periodic ...
 REPEAT_PERIOD = 12       # ... with a period dividing this (every cycle length 1 to 4)
 
@@ -210,7 +187,9 @@ class Engine:
 
     def __init__(self, test, mem, sched=None, examples: int = 0):
         from ..model import schedule
+        from .setup import check_limits
 
+        check_limits(mem)             # before any work
         # Families that do not depend on time grade an equivalent test whose long repeats are
         # cut down (equivalent_short_test); the time-dependent DRAM families work in closed
         # form from the full test and schedule (full_test, full_sched).
@@ -240,52 +219,36 @@ class Engine:
     def grade(self, selection, scope, progress=None, workers=None):
         """Counts (one :class:`KindResult` per kind of ``selection``, in its order).
 
-        The families are independent pure computations over their kinds
-        (:func:`_family_work`).  On large arrays they run in ``workers`` forked
-        processes (default: 2 where the machine has two cores, the array has at least 2^18
-        cells, fork is available and no other thread is running).
+        First every family's shared set-up is made (``FastPath.prepare``: pair counts and
+        keys, cached per memory and scope, so every test of a comparison reuses them); then
+        the families — independent pure computations over their kinds — run, on large arrays
+        in ``workers`` forked processes (:mod:`marchkit.engine.workers`; default 2 where the
+        machine has two cores, the array has at least 2^18 cells, fork is available and no
+        other thread is running).
         """
+        from .workers import can_fork, map_forked
+
         fams: dict[str, list] = {}
         for k in selection.kinds:
             fams.setdefault(k.family, []).append(k)
         steps = [f.name for f in FAMILIES if f.name in fams]
-        if workers is None:
-            workers = _default_workers(self.prep, len(steps))
-        results: dict[str, KindResult] = {}
-        done = 0
         if progress:
             progress(steps[0] if steps else "done", 0, len(steps))
-        if workers > 1 and len(steps) > 1:
-            import multiprocessing
-            from concurrent.futures import ProcessPoolExecutor, as_completed
+        for f in steps:   # the shared set-up (cached per memory and scope), before any fork
+            fast_path(f).FAST.prepare(self, fams[f], scope)
+        if workers is None:
+            workers = can_fork(self.prep.n * self.prep.B) if len(steps) > 1 else 1
+        done = [0]
 
-            for f in steps:    # shared lazy state, built once before the fork
-                fast_path(f).FAST.prepare(self, fams[f], scope)
-            _FORKED["job"] = (self, fams, scope)
-            try:
-                with ProcessPoolExecutor(max_workers=workers,
-                                         mp_context=multiprocessing.get_context("fork")) as pool:
-                    futs = {pool.submit(_family_work, f): f for f in steps}
-                    try:
-                        for fut in as_completed(futs):
-                            results.update(fut.result())
-                            done += 1
-                            if progress:
-                                progress(futs[fut], done, len(steps))
-                    except BaseException:
-                        for f in futs:      # a failing worker cancels the others
-                            f.cancel()
-                        for p in list(getattr(pool, "_processes", {}).values()):
-                            p.terminate()
-                        raise
-            finally:
-                _FORKED.clear()
-        else:
-            for fam in steps:
-                if progress:
-                    progress(fam, done, len(steps))
-                results.update(self.grade_family(fam, fams[fam], scope))
-                done += 1
+        def tick(i):
+            done[0] += 1
+            if progress:
+                progress(steps[i], done[0], len(steps))
+
+        parts = map_forked(lambda f: self.grade_family(f, fams[f], scope), steps, workers, tick)
+        results: dict[str, KindResult] = {}
+        for part in parts:
+            results.update(part)
         if progress:
             progress("done", len(steps), len(steps))
         return [results[k.text] for k in selection.kinds]

@@ -17,6 +17,28 @@ from functools import lru_cache
 import numpy as np
 
 SINGLE, AFIRST, VFIRST, SAME = 0, 1, 2, 3
+MAX_SETUP_BYTES = 3 << 29      # what the fast engine's per-cell and per-word arrays may take (1.5 GiB)
+
+
+def setup_bytes(mem) -> int:
+    """Estimated bytes of the fast engine's arrays for ``mem``: per cell the background of
+    every run and the cell key (uint8 each) plus room for one more; per word the order, the
+    ranks, the word keys and the retention state (64 bytes)."""
+    from ..model import background_names
+
+    return mem.cells * (len(background_names(mem)) + 2) + mem.words * 64
+
+
+def check_limits(mem) -> None:
+    """Refuse, before any work, a memory whose arrays the fast engine cannot hold."""
+    need = setup_bytes(mem)
+    if need > MAX_SETUP_BYTES:
+        from ..errors import EngineLimitError
+
+        raise EngineLimitError(
+            f"{mem.words:,} words × {mem.bits} bits would need about {need / 2**30:.1f} GiB of arrays "
+            f"in the fast engine (at most {MAX_SETUP_BYTES / 2**30:.1f} GiB: about 2^28 cells with one "
+            "background run, or 2^24 words); grade a smaller array, fewer background runs, or a sub-array")
 CHUNK_CELLS = 1 << 20          # grid cells per chunk of the neighbour counting
 
 
@@ -82,15 +104,29 @@ class MemorySetup:
         self.R, self.n, self.B = self.bg.shape
         bits = self.bg.reshape(self.R, -1)                       # (R, n·B)
         if self.R <= 20:
-            raw = np.zeros(bits.shape[1], dtype=np.int32)
-            for r in range(self.R):
-                raw |= bits[r].astype(np.int32) << r
-            present = np.bincount(raw, minlength=1 << self.R) > 0
+            if self.R == 1:
+                raw = bits[0]
+            else:
+                raw = np.zeros(bits.shape[1], dtype=np.uint8 if self.R <= 8 else np.int32)
+                for r in range(self.R):
+                    raw |= bits[r].astype(raw.dtype) << raw.dtype.type(r)
+            if self.R == 1:
+                ones = int(np.count_nonzero(raw))
+                present = np.array([ones < raw.size, ones > 0])
+            else:
+                present = np.zeros(1 << self.R, dtype=bool)
+                for i in range(0, raw.size, CHUNK_CELLS * 4):      # bincount casts to intp: chunk it
+                    present |= np.bincount(raw[i:i + CHUNK_CELLS * 4], minlength=1 << self.R) > 0
             code = (np.cumsum(present) - 1)
             vals = np.nonzero(present)[0]
             self.key_bits = ((vals[:, None] >> np.arange(self.R)[None, :]) & 1).astype(np.int8)
             self.K = int(vals.size)
-            self.cell_key = code[raw].astype(_small_int(self.K))
+            if self.K == 1:
+                self.cell_key = np.zeros(raw.size, dtype=np.uint8)
+            elif self.K == (1 << self.R) and raw.dtype == np.uint8:
+                self.cell_key = raw                                   # every pattern present: identity
+            else:
+                self.cell_key = np.take(code.astype(_small_int(self.K)), raw)
         else:
             inv, first = dense_rows(bits.T)
             self.key_bits = bits.T[first].astype(np.int8)
@@ -151,8 +187,13 @@ class MemorySetup:
                         for run in range(R):
                             key = key << 1 | self.bg[run, cw[sl]].astype(np.int32)
                     key = key.ravel()
-                    counts += np.bincount(key, minlength=space)
-                    np.minimum.at(first, key, np.arange(w0 * B, sl.stop * B, dtype=np.int64))
+                    c = np.bincount(key, minlength=space)
+                    new = np.nonzero((c > 0) & (counts == 0))[0]
+                    if new.size:        # first cell of each key seen for the first time
+                        order = np.argsort(key, kind="stable")
+                        pos = np.searchsorted(key[order], new)
+                        first[new] = w0 * B + order[pos]
+                    counts += c
                 present = counts > 0
                 self._cache["sof"] = (counts[present], first[present])
             else:   # very many background runs: number the distinct rows of bits
@@ -227,39 +268,73 @@ class MemorySetup:
         return W, self.cell_key[W * self.B + bitc[None, :]]
 
     def _neighbour_counts(self):
-        """Counts over the physical neighbour pairs, on the grid: half of the directions
-        (dr ≥ 0) counted, the opposite ones by symmetry (the pair reversed: keys swapped,
-        aggressor-first ↔ victim-first)."""
+        """Counts over the physical neighbour pairs, on the grid, a chunk of rows at a time.
+
+        Half of the directions (dr > 0, or dr = 0 and dc > 0) are counted; the opposite ones
+        follow by symmetry (the pair reversed: keys swapped, a-first ↔ v-first).  The
+        structure of a pair depends only on its two words, i.e. on (row, slot): it is
+        computed on (rows, mux) arrays ``S`` (uint8: 1 a first, 2 v first, 3 same word) and
+        only spread over the columns (bits) when the cell keys vary (K > 1)."""
         from ..model.geometry import neighbour_directions
 
-        mem, K = self.mem, self.K
-        rows, cols = mem.rows, mem.columns
-        half = [(dr, dc) for dr, dc in neighbour_directions(mem) if dr > 0 or (dr == 0 and dc > 0)]
-        total = np.zeros(4 * K * K, dtype=np.int64)
-        chunk = max(1, CHUNK_CELLS // cols)
-        rank32 = self.rank.astype(np.int32) if self.n < (1 << 31) else self.rank
-        code_t = np.uint8 if 4 * K * K <= 256 else np.int32
-        for r0 in range(0, rows, chunk):
-            r1 = min(rows, r0 + chunk)
-            W, CK = self.grid_rows(r0, min(rows, r1 + 1))          # one halo row below
-            RK = rank32[W]
-            CK = CK.astype(code_t)
-            for dr, dc in half:
-                a1 = min(r1, rows - dr) - r0
-                if a1 <= 0:
-                    continue
-                c0, c1 = max(0, -dc), cols - max(0, dc)
-                Ra, Rb = RK[:a1, c0:c1], RK[dr:dr + a1, c0 + dc:c1 + dc]
-                s = (Ra > Rb).view(np.uint8) + np.uint8(1)
-                s += (Ra == Rb).view(np.uint8) * np.uint8(2)        # 1 a first, 2 v first, 3 same
-                code = (s.astype(code_t) * code_t(K) + CK[:a1, c0:c1]) * code_t(K) + CK[dr:dr + a1, c0 + dc:c1 + dc]
-                total += np.bincount(code.ravel(), minlength=4 * K * K)
+        from .workers import can_fork, map_forked
+
+        mem = self.mem
+        rows = mem.rows
+        workers = can_fork(mem.cells, 1 << 22)
+        bounds = [(0, rows)] if workers < 2 else [(0, rows // 2), (rows // 2, rows)]
+        total = sum(map_forked(lambda b: self._count_rows(*b), bounds, workers))
+        K = self.K
         c = total.reshape(4, K, K)
         out = c.copy()
         out[AFIRST] += c[VFIRST].T
         out[VFIRST] += c[AFIRST].T
         out[SAME] += c[SAME].T
         return out
+
+    def _count_rows(self, row0, row1):
+        """(4·K·K,) int64 counts of the half-direction neighbour pairs whose first cell is in
+        grid rows [row0, row1) (see :meth:`_neighbour_counts`)."""
+        from ..model.geometry import neighbour_directions
+
+        mem, K = self.mem, self.K
+        rows, cols, mux = mem.rows, mem.columns, mem.mux
+        half = [(dr, dc) for dr, dc in neighbour_directions(mem) if dr > 0 or (dr == 0 and dc > 0)]
+        total = np.zeros(4 * K * K, dtype=np.int64)
+        chunk = max(1, CHUNK_CELLS // cols)
+        code_t = np.uint8 if 4 * K * K <= 256 else np.int32
+        slots = np.arange(mux)
+        for r0 in range(row0, row1, chunk):
+            r1 = min(row1, r0 + chunk)
+            hi = min(rows, r1 + 1)                                  # one halo row below
+            rr = np.arange(r0, hi, dtype=np.int64)
+            lw = mem.logical_word(rr[:, None] * mux + slots[None, :])   # (h, mux) int64
+            rk = self.rank[lw]
+            CK = None
+            for dr, dc in half:
+                a1 = min(r1, rows - dr) - r0
+                c0, c1 = max(0, -dc), cols - max(0, dc)
+                if a1 <= 0 or c1 <= c0:
+                    continue
+                sb = (slots + dc) % mux                              # slot of the neighbour column
+                Ra, Rb = rk[:a1], rk[dr:dr + a1][:, sb]
+                S = (Ra > Rb).view(np.uint8) + 1
+                S += (Ra == Rb).view(np.uint8) * 2
+                colslot = np.arange(c0, c1) % mux
+                if K == 1:
+                    nb = np.bincount(colslot, minlength=mux)       # valid columns per slot
+                    for sv in (1, 2, 3):
+                        total[sv] += int(((S == sv) * nb[None, :]).sum())
+                    continue
+                if CK is None:
+                    _, CK = self.grid_rows(r0, hi)
+                    CK = CK.astype(code_t)
+                # (the column gather comes out column-major: make it row-major like CK)
+                Sc = S.astype(code_t) if mux == 1 else np.ascontiguousarray(S[:, colslot], dtype=code_t)
+                # python-int scalars: a numpy scalar makes strided uint8 arithmetic ~10× slower
+                code = (Sc * K + CK[:a1, c0:c1]) * K + CK[dr:dr + a1, c0 + dc:c1 + dc]
+                total += np.bincount(code.ravel().astype(np.intp), minlength=4 * K * K)
+        return total
 
     # ---- word pairs (address-decoder faults) ---------------------------------------
     def word_pair_counts(self, scope):

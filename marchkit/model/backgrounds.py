@@ -67,13 +67,18 @@ def background_array(mem, name: str) -> np.ndarray:
         v = int(name, 16)
         row = ((v >> bits) & 1).astype(np.uint8)
         return np.broadcast_to(row, (mem.words, mem.bits)).copy()
-    row, col = mem.place(words[:, None], bits[None, :])
+    # parities only: row = p // mux, column = b·mux + p % mux (see geometry), so
+    # (row + column) % 2 = (row + slot) % 2 ⊕ (b·mux) % 2 — per word and per bit, not per cell
+    p = mem.physical_word(words)
+    row_par = ((p // mem.mux) & 1).astype(np.uint8)[:, None]          # (n, 1)
+    slot_par = ((p % mem.mux) & 1).astype(np.uint8)[:, None]          # (n, 1)
+    bit_par = ((bits * mem.mux) & 1).astype(np.uint8)[None, :]        # (1, B)
     if name == "checkerboard":
-        return ((row + col) % 2).astype(np.uint8)
+        return row_par ^ slot_par ^ bit_par
     if name == "rows":
-        return (row % 2 + 0 * col).astype(np.uint8)
+        return np.broadcast_to(row_par, (mem.words, mem.bits)).copy()
     if name == "columns":
-        return (col % 2 + 0 * row).astype(np.uint8)
+        return slot_par ^ bit_par
     raise ModelError(f"unknown background {name!r}")
 
 

@@ -12,9 +12,10 @@ from fractions import Fraction
 from typing import Iterator, Union
 
 from ..errors import SourcePos
+from ..units import SECONDS_PER_UNIT
 
 ORDERS = ("up", "down", "any")
-UNITS = {"ns": Fraction(1, 10**9), "us": Fraction(1, 10**6), "ms": Fraction(1, 1000), "s": Fraction(1)}
+UNITS = SECONDS_PER_UNIT
 MAX_REPEAT = 1_000_000_000     # hammer-length repeats; graded and exported in closed form
 
 

@@ -20,6 +20,7 @@ from fractions import Fraction
 from typing import Callable, Sequence
 
 from ..errors import InputError
+from ..units import format_frequency, format_time, percent_text  # noqa: F401  (re-exported)
 
 # sort keys: name -> (what it sorts by, how the rows go)
 SORT_KEYS = {
@@ -150,44 +151,6 @@ def memory_label(mem) -> str:
         parts.append(f"mux {mem.mux}")
     parts.append(format_frequency(mem.clock_hz))
     return f"{getattr(mem, 'name', '') or 'memory'} ({', '.join(parts)})"
-
-
-def format_frequency(hz) -> str:
-    hz = float(hz)
-    for unit, scale in (("GHz", 1e9), ("MHz", 1e6), ("kHz", 1e3)):
-        if hz >= scale:
-            return f"{hz / scale:.4g} {unit}"
-    return f"{hz:.4g} Hz"
-
-
-def percent_text(cov: float, digits: int = 1, detected: int | None = None,
-                 instances: int | None = None) -> str:
-    """A coverage (0..1) as a percentage text, rounded to ``digits`` decimals, except that a
-    partial coverage never shows as ``100`` nor as ``0`` (it is held at the nearest value
-    short of them).  Full and zero coverage print without decimals."""
-    if detected is not None and instances is not None:
-        full, none = detected >= instances, detected == 0
-    else:
-        full, none = cov >= 1.0, cov <= 0.0
-    if full:
-        return "100"
-    if none:
-        return "0"
-    step = 10.0 ** -digits
-    v = round(100.0 * cov, digits)
-    v = min(max(v, step), 100.0 - step)
-    return f"{v:.{digits}f}"
-
-
-def format_time(seconds: float) -> str:
-    """``12.5 µs``, ``3.2 ms``, ``0.2 s`` — four significant digits at most."""
-    s = float(seconds)
-    if s == 0:
-        return "0 s"
-    for unit, scale in (("s", 1.0), ("ms", 1e-3), ("µs", 1e-6), ("ns", 1e-9)):
-        if abs(s) >= scale:
-            return f"{s / scale:.4g} {unit}"
-    return f"{s / 1e-9:.3g} ns"
 
 
 def unique_labels(names: Sequence[str]) -> list[str]:

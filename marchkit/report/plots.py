@@ -10,19 +10,12 @@ from __future__ import annotations
 
 import math
 
+from ..units import TIME_UNITS as _TIME_UNITS
+from ..units import time_unit  # noqa: F401  (re-exported)
 from .compare import Comparison, percent_text
 from .style import (BLUE, HEAT_MAP, INK, MUTED, TRACK, VERMILLION, new_figure, rc,
                     save_figure)
 
-_TIME_UNITS = (("s", 1.0), ("ms", 1e-3), ("µs", 1e-6), ("ns", 1e-9))
-
-
-def time_unit(seconds_max: float) -> tuple[str, float]:
-    """The largest unit in which the longest time is at least 1."""
-    for unit, scale in _TIME_UNITS:
-        if seconds_max >= scale:
-            return unit, scale
-    return _TIME_UNITS[-1]
 
 
 # a time axis is broken in two when the tests fall into two groups this far apart (ratio of

@@ -98,6 +98,8 @@ class DecoderFast(FastPath):
 
     def prepare(self, eng, kinds, scope):
         eng.prep.word_keys()
+        if any(k.arity == 2 for k in kinds):
+            eng.prep.setup.word_pair_counts(scope)
 
     def verdicts(self, eng, instances):
         out = []

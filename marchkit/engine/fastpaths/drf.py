@@ -36,6 +36,10 @@ def _visit_times(prep, si, up):
 
 
 class RetentionFast(FastPath):
+    def prepare(self, eng, kinds, scope):
+        if eng.prep.K <= eng.prep.B:
+            eng.prep.setup.word_key_hist()
+
     def drf_table(self, eng, kind):
         """(detected (n, C) bool, canonical first event (n, C) int64 as a segment·maxk + op
         code or -1, maxk, by_key) for each (word, column)."""

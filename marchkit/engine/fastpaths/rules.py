@@ -231,6 +231,11 @@ def _pair_counts_explicit(prep, a, v):
 
 
 class RulesFast(FastPath):
+    def prepare(self, eng, kinds, scope):
+        eng.prep.setup.word_key_hist()
+        if any(k.arity == 2 for k in kinds):
+            eng.prep.setup.pair_counts(scope)
+
     def _rules_tables(self, eng, kinds):
         """verdict tables: {structure: (det[kind, ka, kv], event[kind, ka, kv], events)}."""
         prep = eng.prep

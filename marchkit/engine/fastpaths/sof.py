@@ -13,6 +13,9 @@ from .base import FastPath
 
 
 class StuckOpenFast(FastPath):
+    def prepare(self, eng, kinds, scope):
+        eng.prep.setup.sof_keys()
+
     def _sof_verdict(self, eng, kind, cell):
         prep = eng.prep
         w = cell // prep.B
@@ -28,18 +31,17 @@ class StuckOpenFast(FastPath):
     def grade(self, eng, kinds, scope, results):
         prep = eng.prep
         counts, first_idx = prep.setup.sof_keys()
-        cells = np.arange(prep.n * prep.B, dtype=np.int64)
         for kind in kinds:
             res = results.setdefault(kind.text, KindResult(kind))
             for i, c in zip(first_idx, counts):
-                det, ev = self._sof_verdict(eng, kind, int(cells[i]))
+                det, ev = self._sof_verdict(eng, kind, int(i))
                 res.instances += int(c)
                 if det:
                     res.detected += int(c)
                     res.merge_element(prep.sched.segments[ev.seg].element)
                 else:
                     res.missed_structures.add("single")
-                    eng.take(res, [Instance(kind, (int(cells[i]),))])
+                    eng.take(res, [Instance(kind, (int(i),))])
         return results
 
     def verdicts(self, eng, instances):
