@@ -59,6 +59,36 @@ class DramPrep:
         self.scenarios = list(itertools.product((True, False), repeat=len(self.any_elems)))
         self.maxk = max((s.ops_per_visit for s in sched.segments), default=1)
         self.inits = self._inits()
+        self._columns()
+        self.cache: dict = {}         # sort orders and event layouts shared by every kind
+
+    def _columns(self):
+        """Cells with the same data in every background run behave alike in a word: work on
+        (word, key) columns when there are no more keys than bits (``data[r]`` (1, C)), else
+        on (word, bit) (``data[r]`` (n, B)).  ``hist`` (n, C) counts the cells of each column;
+        ``col`` (n·B,) is each cell's column."""
+        R, n, B = self.bg.shape
+        bits = self.bg.reshape(R, -1).T.astype(np.int64)                 # (n·B, R)
+        if R <= 62:
+            raw = (bits << np.arange(R, dtype=np.int64)[None, :]).sum(axis=1)
+            uniq, inv = np.unique(raw, return_inverse=True)
+            key_bits = ((uniq[:, None] >> np.arange(R)[None, :]) & 1).astype(np.int8)
+        else:
+            key_bits, inv = np.unique(bits, axis=0, return_inverse=True)
+            key_bits = key_bits.astype(np.int8)
+        inv = inv.ravel().astype(np.int64)
+        K = key_bits.shape[0]
+        if K <= B:
+            self.C = K
+            self.data = [key_bits[:, r][None, :] for r in range(R)]
+            self.col = inv
+            words = np.repeat(np.arange(n, dtype=np.int64), B)
+            self.hist = np.bincount(words * K + inv, minlength=n * K).reshape(n, K)
+        else:
+            self.C = B
+            self.data = [self.bg[r].astype(np.int8) for r in range(R)]
+            self.col = np.tile(np.arange(B, dtype=np.int64), n)
+            self.hist = np.ones((n, B), np.int64)
 
     def _inits(self):
         """Initial values worth trying: the start value matters only when some word is read
@@ -125,7 +155,7 @@ class DramEngine:
         stretches inside a visit are one operation long and may reach τ; after two copies
         of a run the state is fixed (every copy sees the same state and gap)."""
         p = self.p
-        bg = p.bg[seg.run]
+        bg = p.data[seg.run]
         prev_each = None
 
         def decay():
@@ -166,15 +196,33 @@ class DramEngine:
                           lambda: {"last": np.zeros(U, np.int64), "fl": np.full(U, -1, np.int64)}, x,
                           None if row_mode else tau)
 
+    def _blocks(self, kind, seq, unit):
+        """Consecutive visits of one unit (row or word) merged into blocks, in visiting
+        order: (unit (nb,), first position (nb,), last position (nb,), block of each position
+        (n,)); cached per visiting order.  Inside a block the unit is restored every
+        operation, so a block is one restore event from its first to its last operation."""
+        key = (kind, int(seq[0]), int(seq[-1]))
+        if key not in self.p.cache:
+            u = unit[seq]
+            start = np.ones(u.size, bool)
+            start[1:] = u[1:] != u[:-1]
+            p0 = np.nonzero(start)[0]
+            p1 = np.append(p0[1:] - 1, u.size - 1)
+            self.p.cache[key] = (u[p0], p0, p1, np.cumsum(start) - 1)
+        return self.p.cache[key]
+
     def _ret_seg(self, seg, tf, seq, st, unit, unit_row, tau):
         """Latest crossing (stretch ≥ τ ending) of each word's unit up to its visit (n,)."""
-        tl = tf + seg.per_address - seg.runs[-1].each
-        u = unit[seq]                                  # visiting order
-        t1 = tf[seq]
-        t2 = tl[seq]
-        idx = np.argsort(u, kind="stable")
-        us, a, b = u[idx], t1[idx], t2[idx]
-        gstart, is_start = _groups(us)
+        bu, p0, p1, blk = self._blocks("retb", seq, unit)
+        key = ("rets", int(seq[0]), int(seq[-1]))
+        if key not in self.p.cache:
+            idx = np.argsort(bu, kind="stable")
+            us = bu[idx]
+            self.p.cache[key] = (idx, us) + _groups(us)
+        idx, us, gstart, is_start = self.p.cache[key]
+        Pa = seg.per_address
+        a = seg.start + p0[idx] * Pa
+        b = seg.start + p1[idx] * Pa + Pa - seg.runs[-1].each
         prev = np.empty_like(b)
         prev[1:] = b[:-1]
         prev[is_start] = st["last"][us[is_start]]
@@ -186,8 +234,10 @@ class DramEngine:
         end[:-1] = us[1:] != us[:-1]
         st["last"][us[end]] = b[end]
         st["fl"][us[end]] = fl[end]
+        flb = np.empty(bu.size, np.int64)
+        flb[idx] = fl
         flw = np.empty(self.p.n, np.int64)
-        flw[seq[idx]] = fl
+        flw[seq] = flb[blk]
         return flw
 
     # ---- disturb -------------------------------------------------------------------------
@@ -204,69 +254,23 @@ class DramEngine:
 
     def _dist_seg(self, seg, tf, seq, st, N):
         p = self.p
-        plan = p.plan
-        rows = p.rows
         n = p.n
-        r = p.row[seq]                         # row of each visit, in time order
-        base = tf[seq]
-        tl = base + seg.per_address - seg.runs[-1].each
+        br, p0, p1, blk = self._blocks("distb", seq, p.row)
         if p.mem.page == "open":
-            prev_row = np.empty_like(r)
-            prev_row[0] = st["open"]
-            prev_row[1:] = r[:-1]
-            act_first = r != prev_row
+            first_act = bool(br[0] != st["open"])     # later blocks always change row
         else:
-            act_first = None
-        st["open"] = int(r[-1])
-        flw = np.full(n, -1, np.int64)
+            first_act = None
+        st["open"] = int(br[-1])
+        flb = np.full(br.size, -1, np.int64)
         for side, d in ((0, 1), (1, -1)):      # side 0: aggressor below (v = r + 1); side 1: above
-            v = r + d
-            ok = (v >= 0) & (v < rows)
-            vi = np.nonzero(ok)[0]
-            vv = v[vi]
-            # pieces of each aggressor visit, split at the refresh slots of the victim row
-            if plan.period:
-                off = plan.offsets[vv]
-                P = plan.period
-
-                def F(t):
-                    return np.where(t >= off, (t - off) // P + 1, 0)
-
-                m = F(tl[vi]) - F(base[vi])
-            else:
-                m = np.zeros(vi.size, np.int64)
-            rep = np.repeat(np.arange(vi.size), m + 1)
-            jp = np.arange(rep.size) - np.repeat(np.cumsum(m + 1) - (m + 1), m + 1)
-            pv = vv[rep]
-            pb = base[vi][rep]
-            if plan.period:
-                k0 = np.where(pb >= plan.offsets[pv], (pb - plan.offsets[pv]) // P + 1, 0)
-                slot = plan.offsets[pv] + (k0 + jp - 1) * P
-                ps = np.where(jp == 0, pb, slot)
-                nxt = plan.offsets[pv] + (k0 + jp) * P
-                pe = np.where(jp == m[rep], tl[vi][rep] + 1, nxt)
-            else:
-                ps, pe = pb, tl[vi][rep] + 1
-            if act_first is None:
-                w = _copies_in(seg, pb, ps, pe)
-            else:
-                w = np.where((jp == 0) & act_first[vi][rep], 1, 0).astype(np.int64)
-            # reset events: the visits of the victim row itself
-            ev_v = np.concatenate([pv, r])
-            ev_s = np.concatenate([ps, base])
-            ev_e = np.concatenate([pe - 1, tl])
-            ev_w = np.concatenate([w, np.zeros(n, np.int64)])
-            ev_piece = np.concatenate([np.ones(pv.size, bool), np.zeros(n, bool)])
-            ev_slot = np.concatenate([jp > 0, np.zeros(n, bool)])
-            ev_word = np.concatenate([np.full(pv.size, -1, np.int64), seq])
-            o = np.lexsort((ev_s, ev_v))
-            ev_v, ev_s, ev_e, ev_w = ev_v[o], ev_s[o], ev_e[o], ev_w[o]
-            ev_piece, ev_slot, ev_word = ev_piece[o], ev_slot[o], ev_word[o]
-            gstart, is_start = _groups(ev_v)
+            key = ("dist", seg.start, int(seq[0]), int(seq[-1]), side, first_act)
+            if key not in p.cache:
+                p.cache[key] = self._dist_layout(seg, br, p0, p1, first_act, d)
+            ev_v, ev_s, ev_e, ev_w, ev_piece, ev_slot, ev_blk, gstart, is_start, last_ref = p.cache[key]
             prev_end = np.empty_like(ev_e)
             prev_end[1:] = ev_e[:-1]
             prev_end[is_start] = st["ct"][side][ev_v[is_start]]
-            refreshed = plan.last_refresh(ev_v, ev_s) > prev_end
+            refreshed = last_ref > prev_end
             reset = (~ev_piece) | ev_slot | refreshed
             c_incl = np.cumsum(ev_w)
             c_excl = c_incl - ev_w
@@ -282,23 +286,88 @@ class DramEngine:
             st["cnt"][side][ev_v[end]] = count[end]
             st["ct"][side][ev_v[end]] = ev_e[end]
             st["fl"][side][ev_v[end]] = fl[end]
-            isw = ev_word >= 0
-            flw[ev_word[isw]] = np.maximum(flw[ev_word[isw]], fl[isw])
+            isb = ev_blk >= 0
+            flb[ev_blk[isb]] = np.maximum(flb[ev_blk[isb]], fl[isb])
+        flw = np.empty(n, np.int64)
+        flw[seq] = flb[blk]
         return flw
+
+    def _dist_layout(self, seg, br, p0, p1, first_act, d):
+        """The events of every victim row on one side in one segment, sorted by (row, time);
+        independent of the threshold and of the state carried in.  Events: the blocks of the
+        victim row (resets) and the blocks of row v ∓ 1 split at the victim row's refresh
+        slots (pieces, with their activations counted in closed form)."""
+        p = self.p
+        plan = p.plan
+        Pa = seg.per_address
+        base_b = seg.start + p0 * Pa
+        tl_b = seg.start + p1 * Pa + Pa - seg.runs[-1].each
+        v = br + d
+        vi = np.nonzero((v >= 0) & (v < p.rows))[0]
+        vv = v[vi]
+        if plan.period:
+            P = plan.period
+            off = plan.offsets[vv]
+
+            def F(t):
+                return np.where(t >= off, (t - off) // P + 1, 0)
+
+            m = F(tl_b[vi]) - F(base_b[vi])
+        else:
+            m = np.zeros(vi.size, np.int64)
+        rep = np.repeat(np.arange(vi.size), m + 1)
+        jp = np.arange(rep.size) - np.repeat(np.cumsum(m + 1) - (m + 1), m + 1)
+        pv = vv[rep]
+        pb = base_b[vi][rep]
+        ptl = tl_b[vi][rep]
+        if plan.period:
+            offp = plan.offsets[pv]
+            k0 = np.where(pb >= offp, (pb - offp) // P + 1, 0)
+            ps = np.where(jp == 0, pb, offp + (k0 + jp - 1) * P)
+            pe = np.where(jp == m[rep], ptl + 1, offp + (k0 + jp) * P)
+        else:
+            ps, pe = pb, ptl + 1
+        if first_act is None:
+            # closed page: every copy activates; whole visits inside a piece count ops_per_visit
+            ja = (ps - pb) // Pa
+            jb = (pe - 1 - pb) // Pa
+            va, vb = pb + ja * Pa, pb + jb * Pa
+            same = _copies_in(seg, va, ps, pe)
+            split = (_copies_in(seg, va, ps, va + Pa) + np.maximum(0, jb - ja - 1) * seg.ops_per_visit
+                     + _copies_in(seg, vb, vb, pe))
+            w = np.where(ja == jb, same, split)
+        else:
+            act = np.ones(br.size, bool)
+            act[0] = first_act
+            w = np.where((jp == 0) & act[vi][rep], 1, 0).astype(np.int64)
+        nb = br.size
+        ev_v = np.concatenate([pv, br])
+        ev_s = np.concatenate([ps, base_b])
+        ev_e = np.concatenate([pe - 1, tl_b])
+        ev_w = np.concatenate([w, np.zeros(nb, np.int64)])
+        ev_piece = np.concatenate([np.ones(pv.size, bool), np.zeros(nb, bool)])
+        ev_slot = np.concatenate([jp > 0, np.zeros(nb, bool)])
+        ev_blk = np.concatenate([np.full(pv.size, -1, np.int64), np.arange(nb, dtype=np.int64)])
+        o = np.lexsort((ev_s, ev_v))
+        ev_v, ev_s, ev_e, ev_w = ev_v[o], ev_s[o], ev_e[o], ev_w[o]
+        ev_piece, ev_slot, ev_blk = ev_piece[o], ev_slot[o], ev_blk[o]
+        gstart, is_start = _groups(ev_v)
+        return (ev_v, ev_s, ev_e, ev_w, ev_piece, ev_slot, ev_blk, gstart, is_start,
+                plan.last_refresh(ev_v, ev_s))
 
     # ---- the scan shared by both families ------------------------------------------------
     def _scan(self, kind, seg_fn, fresh, x, tau_word=None):
         """(detected (n, B), canonical first event code (n, B), maxk)."""
         p = self.p
-        detected = np.ones((p.n, p.B), bool)
+        detected = np.ones((p.n, p.C), bool)
         canon = None
         inits = p.inits or (1 - x,)
         for any_up in p.scenarios:
             firsts = []
             for init in inits:
-                val = np.full((p.n, p.B), init, np.int8)
-                since = np.full((p.n, p.B), -1, np.int64)
-                first = np.full((p.n, p.B), -1, np.int64)
+                val = np.full((p.n, p.C), init, np.int8)
+                since = np.full((p.n, p.C), -1, np.int64)
+                first = np.full((p.n, p.C), -1, np.int64)
                 st = fresh()
                 for si, seg in enumerate(p.sched.segments):
                     if seg.element is None:
@@ -339,15 +408,16 @@ def grade_dram_kinds(eng, kinds, results):
     for kind in kinds:
         res = results.setdefault(kind.text, KindResult(kind))
         det, canon, maxk = first_codes(deng, kind)
-        res.instances += det.size
-        res.detected += int(det.sum())
-        if not det.all():
+        present = prep.hist > 0
+        res.instances += int(prep.hist.sum())
+        res.detected += int(prep.hist[det].sum())
+        if (present & ~det).any():
             res.missed_structures.add("single")
             room = examples - len(res.missed_examples)
             if room > 0:
-                miss = np.nonzero(~det.ravel())[0][:room]
-                res.missed_examples.extend(Instance(kind, (int(c),)) for c in miss)
-        for code in np.unique(canon[det]):
+                missed_cells = np.nonzero(~det[np.arange(prep.n).repeat(prep.B), prep.col])[0][:room]
+                res.missed_examples.extend(Instance(kind, (int(c),)) for c in missed_cells)
+        for code in np.unique(canon[det & present]):
             res.merge_element(prep.sched.segments[int(code) // maxk].element)
     return results
 
@@ -371,11 +441,12 @@ def dram_verdicts(eng, instances):
         if inst.kind.text not in cache:
             cache[inst.kind.text] = first_codes(deng, inst.kind)
         det, canon, maxk = cache[inst.kind.text]
-        w, b = divmod(inst.sites[0], prep.B)
-        if not det[w, b]:
+        w = inst.sites[0] // prep.B
+        col = int(prep.col[inst.sites[0]])
+        if not det[w, col]:
             out.append((False, None))
             continue
-        si, k = divmod(int(canon[w, b]), maxk)
+        si, k = divmod(int(canon[w, col]), maxk)
         seg = prep.sched.segments[si]
         pos = prep.rank[w] if seg.order != "down" else prep.n - 1 - prep.rank[w]
         out.append((True, Detection(seg.run, seg.element, k, int(w), int(op_cycle(seg, k, int(pos))))))
