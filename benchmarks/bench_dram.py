@@ -50,10 +50,15 @@ def _child(job):
                       "cycles": r.cycles}))
 
 
-def run(job):
-    out = subprocess.run([sys.executable, __file__, "--child", json.dumps(job)], capture_output=True, text=True,
-                         check=True)
-    return json.loads(out.stdout.strip().splitlines()[-1])
+def run(job, times=1):
+    """Best of ``times`` fresh processes (no cache carried from one measurement to the next)."""
+    best = None
+    for _ in range(times):
+        out = subprocess.run([sys.executable, __file__, "--child", json.dumps(dict(job, repeat=1))],
+                             capture_output=True, text=True, check=True)
+        r = json.loads(out.stdout.strip().splitlines()[-1])
+        best = r if best is None or r["seconds"] < best["seconds"] else best
+    return best
 
 
 def main():
@@ -66,10 +71,10 @@ def main():
         return
     words = 1 << (18 if a.quick else 20)
     rep = 1 if a.quick else 3
-    print(f"1. hammer-length repeats, {words:,} x 1, static primitives, neighbour pairs (best of {rep})")
-    base = run(dict(mem=dict(words=words, bits=1), test="{⇕(w0); ⇑(r0,w1); ⇓(r1)}", faults="static", repeat=rep))
-    long = run(dict(mem=dict(words=words, bits=1), test="{⇕(w0); ⇑(r0^1000000,w1); ⇓(r1)}", faults="static",
-                    repeat=rep))
+    print(f"1. hammer-length repeats, {words:,} x 1, static primitives, neighbour pairs "
+          f"(best of {rep} fresh processes)")
+    base = run(dict(mem=dict(words=words, bits=1), test="{⇕(w0); ⇑(r0,w1); ⇓(r1)}", faults="static"), rep)
+    long = run(dict(mem=dict(words=words, bits=1), test="{⇕(w0); ⇑(r0^1000000,w1); ⇓(r1)}", faults="static"), rep)
     print(f"   r0          {base['seconds']:.3f} s   {base['instances']:,} instances   {base['cycles']:,} cycles")
     print(f"   r0^1000000  {long['seconds']:.3f} s   {long['instances']:,} instances   {long['cycles']:,} cycles")
     print(f"   ratio       {long['seconds'] / base['seconds']:.2f}  (target ≤ 1.2)")
@@ -82,7 +87,7 @@ def main():
     for name, test in (("retention", "{⇕(w0); Del(100ms); ⇑(r0,w1); Del(100ms); ⇓(r1)}"),
                        ("hammer", "{⇑(w0); ⇑(r0^140000); ⇑(r0,w1); ⇓(r1^140000); ⇓(r1)}")):
         r = run(dict(mem=mem, test=test, faults="dram", retention=["1/20", "1/10", "1/5"],
-                     thresholds=[139000, 4800], repeat=1))
+                     thresholds=[139000, 4800]))
         print(f"   {name:9s} {test}\n             {r['seconds']:.2f} s   {r['instances']:,} instances   "
               f"{r['detected']:,} detected   {r['cycles']:,} cycles   (target ≤ 10 s)")
 

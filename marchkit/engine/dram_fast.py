@@ -68,27 +68,33 @@ class DramPrep:
         on (word, bit) (``data[r]`` (n, B)).  ``hist`` (n, C) counts the cells of each column;
         ``col`` (n·B,) is each cell's column."""
         R, n, B = self.bg.shape
-        bits = self.bg.reshape(R, -1).T.astype(np.int64)                 # (n·B, R)
-        if R <= 62:
-            raw = (bits << np.arange(R, dtype=np.int64)[None, :]).sum(axis=1)
-            uniq, inv = np.unique(raw, return_inverse=True)
-            key_bits = ((uniq[:, None] >> np.arange(R)[None, :]) & 1).astype(np.int8)
-        else:
-            key_bits, inv = np.unique(bits, axis=0, return_inverse=True)
-            key_bits = key_bits.astype(np.int8)
-        inv = inv.ravel().astype(np.int64)
-        K = key_bits.shape[0]
-        if K <= B:
-            self.C = K
-            self.data = [key_bits[:, r][None, :] for r in range(R)]
-            self.col = inv
-            words = np.repeat(np.arange(n, dtype=np.int64), B)
-            self.hist = np.bincount(words * K + inv, minlength=n * K).reshape(n, K)
-        else:
-            self.C = B
-            self.data = [self.bg[r].astype(np.int8) for r in range(R)]
-            self.col = np.tile(np.arange(B, dtype=np.int64), n)
-            self.hist = np.ones((n, B), np.int64)
+        self._raw = None
+        if R <= 4:                                  # few runs: small codes, no int64 copies
+            raw = np.zeros((n, B), np.uint8)
+            for r in range(R):
+                raw |= self.bg[r] << np.uint8(r)
+            present = np.array([v for v in range(1 << R) if (raw == v).any()], np.int64)
+            K = present.size
+            if K <= B:
+                self.C = K
+                key_bits = ((present[:, None] >> np.arange(R)[None, :]) & 1).astype(np.int8)
+                self.data = [key_bits[:, r][None, :] for r in range(R)]
+                self.hist = (np.full((n, 1), B, np.int64) if K == 1 else
+                             np.stack([(raw == v).sum(axis=1) for v in present], axis=1).astype(np.int64))
+                self._raw, self._present = raw, present
+                return
+        self.C = B
+        self.data = [self.bg[r].astype(np.int8) for r in range(R)]
+        self.hist = np.ones((n, B), np.int64)
+
+    @property
+    def col(self) -> np.ndarray:
+        """Column of each cell (n·B,) int64."""
+        if self._raw is None:
+            return np.tile(np.arange(self.B, dtype=np.int64), self.n)
+        lut = np.zeros(1 << 4, np.int64)
+        lut[self._present] = np.arange(self._present.size)
+        return lut[self._raw.reshape(-1)]
 
     def _inits(self):
         """Initial values worth trying: the start value matters only when some word is read
@@ -417,8 +423,9 @@ def grade_dram_kinds(eng, kinds, results):
             if room > 0:
                 missed_cells = np.nonzero(~det[np.arange(prep.n).repeat(prep.B), prep.col])[0][:room]
                 res.missed_examples.extend(Instance(kind, (int(c),)) for c in missed_cells)
-        for code in np.unique(canon[det & present]):
-            res.merge_element(prep.sched.segments[int(code) // maxk].element)
+        segs = np.bincount(canon[det & present] // maxk)       # segments of first detections
+        for si in np.nonzero(segs)[0]:
+            res.merge_element(prep.sched.segments[int(si)].element)
     return results
 
 
