@@ -407,3 +407,21 @@ def test_cycle_by_cycle_formats_refuse_hammer_repeats(tmp_path, cli):
                          "-o", str(tmp_path / "h.stil"))
     assert code == 0, err
     assert (tmp_path / "h.stil").stat().st_size < 1_000_000            # grows with words, not repeats
+
+
+def test_the_shipped_dram_example_and_demo(cli):
+    from pathlib import Path
+
+    root = Path(__file__).resolve().parents[1]
+    mem = str(root / "examples" / "corvid_dram.toml")
+    code, out, err = cli("check", str(root / "examples" / "dram.march"), "--strict")
+    assert code == 0, err
+    code, out, err = cli("check", mem)
+    assert code == 0 and "refresh 64ms distributed" in out, err
+    code, out, err = cli("grade", f"{root / 'examples' / 'dram.march'}:Corvid retention", "--memory", mem,
+                         "--faults", "retention", "--retention", "50ms,100ms,200ms")
+    assert code == 0, err
+    # 100 ms pauses with refresh suspended: τ = 50 ms and 100 ms caught, 200 ms not
+    assert "66.67%" in out
+    code, out, err = cli("demo")
+    assert code == 0 and "corvid_edram" in out and "disturb" in out, err

@@ -21,6 +21,13 @@ DEMO_MEMORY = dict(
     order="linear", backgrounds=("solid",),
 )
 DEFAULT_WORDS = 64
+# the DRAM of the demo (also examples/corvid_dram.toml): an invented 1 Mbit embedded DRAM
+DEMO_DRAM = dict(
+    name="corvid_edram", words=65536, bits=16, mux=128, clock="400MHz", read_cycles=2, write_cycles=2,
+    refresh="64ms", refresh_scheme="distributed", refresh_during_delays="no", page="closed",
+)
+DEMO_RETENTION = ("1/20", "1/10", "1/5")          # 50, 100, 200 ms (placeholders, not a technology's)
+DEMO_THRESHOLDS = (139_000, 4_800)               # Kim et al., ISCA 2014 (DDR3); ISCA 2020 (LPDDR4)
 
 
 def console(stderr: bool = False):
