@@ -138,17 +138,33 @@ def test_console_script_runs_without_traceback_on_bad_input(tmp_path):
 def test_non_editable_install_works_outside_the_repository(tmp_path):
     """Build the wheel, install it in a fresh venv (dependencies from this environment),
     and run it from another directory: grammars/ and patterns/ must come along."""
+    # no PYTHONPATH in the children: the checkout (with the egg-info a wheel build leaves) must not
+    # stand in for the installed copy
+    env = {k: v for k, v in os.environ.items() if k != "PYTHONPATH"}
     wheel_dir = tmp_path / "wheels"
     subprocess.run([sys.executable, "-m", "pip", "wheel", "--no-deps", "--no-build-isolation", "-q",
                     "-w", str(wheel_dir), str(ROOT)], check=True, capture_output=True)
     wheel = next(wheel_dir.glob("marchkit-*.whl"))
     venv = tmp_path / "venv"
-    subprocess.run([sys.executable, "-m", "venv", "--system-site-packages", str(venv)], check=True)
+    subprocess.run([sys.executable, "-m", "venv", str(venv)], check=True)
     py = venv / "bin" / "python"
-    subprocess.run([str(py), "-m", "pip", "install", "--no-deps", "-q", str(wheel)], check=True, capture_output=True)
+    # The dependencies come from the environment running the tests — a user's venv as well as a
+    # system-wide install (a --system-site-packages venv would only see the base interpreter's):
+    # its site directories are appended to the new venv's path by a .pth file, after the venv's
+    # own site-packages, so the installed wheel is the marchkit found.
+    import site
+    import sysconfig
+
+    parent = [p for p in dict.fromkeys(site.getsitepackages() + [site.getusersitepackages(),
+                                        sysconfig.get_paths()["purelib"], sysconfig.get_paths()["platlib"]])
+              if os.path.isdir(p)]
+    own = subprocess.run([str(py), "-c", "import sysconfig; print(sysconfig.get_paths()['purelib'])"],
+                         check=True, capture_output=True, text=True, env=env).stdout.strip()
+    (Path(own) / "_test_parent_env.pth").write_text("\n".join(parent) + "\n", encoding="utf-8")
+    subprocess.run([str(py), "-m", "pip", "install", "--no-deps", "-q", str(wheel)], check=True,
+                   capture_output=True, env=env)
     elsewhere = tmp_path / "elsewhere"
     elsewhere.mkdir()
-    env = {k: v for k, v in os.environ.items() if k != "PYTHONPATH"}
     probe = subprocess.run([str(py), "-c", "import marchkit, sys; print(marchkit.__file__)"],
                            cwd=elsewhere, capture_output=True, text=True, env=env, check=True)
     assert str(venv) in probe.stdout, probe.stdout   # the installed copy, not the checkout

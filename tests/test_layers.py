@@ -141,3 +141,13 @@ def test_import_marchkit_stays_light():
     out = subprocess.run([sys.executable, "-c", code.replace("marchkit.faults", "marchkit")], cwd=ROOT,
                          capture_output=True, text=True, check=True, env={"PYTHONPATH": str(ROOT), "PATH": ""})
     assert out.stdout.strip() == "[]"
+
+
+def test_every_package_is_in_the_wheel():
+    """Every package directory is listed in pyproject.toml (the wheel takes only those);
+    the slow install test would find a missing one much later."""
+    import tomllib
+
+    listed = set(tomllib.loads((ROOT / "pyproject.toml").read_text(encoding="utf-8"))["tool"]["setuptools"]["packages"])
+    found = {".".join(p.parent.relative_to(ROOT).parts) for p in PKG.rglob("__init__.py")}
+    assert found <= listed, f"add to [tool.setuptools] packages in pyproject.toml: {sorted(found - listed)}"

@@ -94,8 +94,12 @@ def run(args) -> int:
     from ..notation import format_notation
     from .common import console, load_test, memory_from_args, retention_from_args, thresholds_from_args
 
-    test = load_test(args.test)
     mem = memory_from_args(args)
+    if args.engine == "fast":          # a size the engine refuses is refused before anything else
+        from ..engine.setup import check_limits
+
+        check_limits(mem)
+    test = load_test(args.test)
     thresholds = thresholds_from_args(args)
     prog, cb = make_progress(sys.stderr.isatty() and not args.json)
     if prog:

@@ -50,6 +50,14 @@ class Prepared:
         self.determined = determined_reads(self.sched)
         self.any_elems = [i for i, e in enumerate(test.elements) if e.order == "any"]
 
+    @property
+    def scenarios(self) -> list:
+        """Every choice of orders for the ⇕ elements (2^k tuples of flags).  Exponential: kept
+        for fast paths written before :func:`sweep_orders`; new code should use that."""
+        import itertools
+
+        return list(itertools.product((True, False), repeat=len(self.any_elems)))
+
     def seg_up(self, si, any_up=None) -> bool:
         """Whether segment ``si`` runs ⇑: ⇕ as ⇑ unless ``any_up`` (a flag per ⇕ element)."""
         seg = self.sched.segments[si]
@@ -85,7 +93,7 @@ def sweep_orders(prep, reach, transition):
     """Whether some choice of ⇕ orders leaves each key undetected — without 2^k scenarios.
 
     ``reach`` (M, NS) bool: the states (of NS per key) each of M keys may start in.
-    ``transition(si, up)`` → ``(end, det)``, both (M, NS): the state (intp) each start state
+    ``transition(si, up)`` → ``(end, det)``, both (M, NS): the state (small int) each start state
     is in after element segment ``si`` run ⇑ (``up``) or ⇓, and whether a read detected on
     the way (bool).  It is called at most twice per segment.  The set of reachable undetected
     states is carried from segment to segment (see :mod:`marchkit.engine.core`); with several
@@ -97,7 +105,6 @@ def sweep_orders(prep, reach, transition):
     segs = prep.sched.segments
     last_run = segs[-1].run if segs else 0
     M, NS = reach.shape
-    rows = np.broadcast_to(np.arange(M)[:, None], (M, NS))
     alive = {(): reach}
     cache = {}
     for si, seg in enumerate(segs):
@@ -120,7 +127,8 @@ def sweep_orders(prep, reach, transition):
                 if not keep.any():
                     continue
                 nr = np.zeros((M, NS), dtype=bool)
-                nr[rows[keep], end[keep]] = True
+                for e in range(NS):         # reached state e from some kept state
+                    nr[:, e] = (keep & (end == e)).any(axis=1)
                 if seg.order == "any":
                     c = dict(chosen)
                     if seg.run < last_run:

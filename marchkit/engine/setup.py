@@ -22,11 +22,11 @@ MAX_SETUP_BYTES = 3 << 29      # what the fast engine's per-cell and per-word ar
 
 def setup_bytes(mem) -> int:
     """Estimated bytes of the fast engine's arrays for ``mem``: per cell the background of
-    every run and the cell key (uint8 each) plus room for one more; per word the order, the
+    every run (uint8 each), the cell key (int32) and room for one more byte; per word the order, the
     ranks, the word keys and the retention state (64 bytes)."""
     from ..model import background_names
 
-    return mem.cells * (len(background_names(mem)) + 2) + mem.words * 64
+    return mem.cells * (len(background_names(mem)) + 5) + mem.words * 64
 
 
 def check_limits(mem) -> None:
@@ -79,17 +79,14 @@ def dense_rows(m: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return inv.ravel().astype(np.int64), first.astype(np.int64)
 
 
-def _small_int(k: int):
-    return np.uint8 if k <= 255 else np.uint16 if k <= 65535 else np.int32
-
-
 class MemorySetup:
     """Arrays of one memory (every array indexed by logical word or flat cell ``w·B + b``):
 
     * ``order`` (n,) int64 — the ⇑ address sequence; ``rank`` (n,) int64 — its inverse;
     * ``bg`` (R, n, B) uint8 — the background of each run;
     * ``key_bits`` (K, R) int8 — the background bits of each cell key;
-      ``cell_key`` (n·B,) uint8/uint16/int32 — each cell's key;
+      ``cell_key`` (n·B,) int32 — each cell's key (int32, not smaller, so that key arithmetic
+      in a fast path cannot wrap around);
     * :meth:`word_keys`, :meth:`word_key_hist`, :meth:`pair_counts`, :meth:`word_pair_counts`
       — computed on first use and kept.
     """
@@ -122,16 +119,16 @@ class MemorySetup:
             self.key_bits = ((vals[:, None] >> np.arange(self.R)[None, :]) & 1).astype(np.int8)
             self.K = int(vals.size)
             if self.K == 1:
-                self.cell_key = np.zeros(raw.size, dtype=np.uint8)
+                self.cell_key = np.zeros(raw.size, dtype=np.int32)
             elif self.K == (1 << self.R) and raw.dtype == np.uint8:
-                self.cell_key = raw                                   # every pattern present: identity
+                self.cell_key = raw.astype(np.int32)                  # every pattern present: identity
             else:
-                self.cell_key = np.take(code.astype(_small_int(self.K)), raw)
+                self.cell_key = np.take(code.astype(np.int32), raw)
         else:
             inv, first = dense_rows(bits.T)
             self.key_bits = bits.T[first].astype(np.int8)
             self.K = int(first.size)
-            self.cell_key = inv.astype(_small_int(self.K))
+            self.cell_key = inv.astype(np.int32)
         self._cache: dict = {}
 
     # ---- words ---------------------------------------------------------------------
@@ -253,6 +250,7 @@ class MemorySetup:
         return np.where(wa == wv, SAME, np.where(ra < rv, AFIRST, VFIRST))
 
     def pair_counts_explicit(self, a, v):
+        """(4, K, K) int64 counts over explicit cell pairs ``a``, ``v`` (m,) int64."""
         K = self.K
         s = self.pair_structure(a, v)
         key = (s * K + self.cell_key[a].astype(np.int64)) * K + self.cell_key[v]
@@ -368,6 +366,7 @@ class MemorySetup:
         return {st: c.reshape(U, U) for st, c in cnt.items()}
 
     def _add_word_pairs(self, cnt, a, b, wk, U):
+        """Add word pairs ``a``, ``b`` (m,) int64 to ``cnt`` ({structure: (U·U,) int64})."""
         first = self.rank[a] < self.rank[b]
         code = wk[a] * U + wk[b]
         cnt[AFIRST] += np.bincount(code[first], minlength=U * U)

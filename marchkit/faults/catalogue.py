@@ -178,6 +178,18 @@ def parse_pairs(spec: str = "neighbours") -> PairScope:
     return PairScope(tuple(dict.fromkeys(parts)), spec)
 
 
+def _unique(x: np.ndarray) -> np.ndarray:
+    """Sorted distinct values (as ``np.unique``, but sort-based: numpy's hash-based unique is
+    slow on millions of distinct values)."""
+    x = np.sort(np.asarray(x), kind="stable")
+    if x.size == 0:
+        return x
+    keep = np.empty(x.size, dtype=bool)
+    keep[0] = True
+    keep[1:] = x[1:] != x[:-1]
+    return x[keep]
+
+
 def _sample_pairs(n: int, k: int, seed: int) -> tuple[np.ndarray, np.ndarray]:
     total = n * (n - 1)
     rng = np.random.default_rng(seed)
@@ -186,9 +198,9 @@ def _sample_pairs(n: int, k: int, seed: int) -> tuple[np.ndarray, np.ndarray]:
     elif total < 50_000_000:
         idx = np.sort(rng.choice(total, size=k, replace=False))
     else:
-        got = np.unique(rng.integers(0, total, size=int(k * 1.1) + 16))
+        got = _unique(rng.integers(0, total, size=int(k * 1.1) + 16))
         while got.size < k:
-            got = np.unique(np.concatenate([got, rng.integers(0, total, size=k)]))
+            got = _unique(np.concatenate([got, rng.integers(0, total, size=k)]))
         idx = np.sort(rng.permutation(got)[:k])
     a = idx // (n - 1)
     r = idx % (n - 1)
@@ -235,7 +247,7 @@ def cell_pairs(mem, scope: PairScope) -> tuple[np.ndarray, np.ndarray] | None:
     a = np.concatenate(a_parts)
     v = np.concatenate(v_parts)
     if len(scope.parts) > 1:
-        key = np.unique(a * n + v)
+        key = _unique(a * n + v)
         a, v = key // n, key % n
     return a, v
 
@@ -254,7 +266,7 @@ def word_pairs(mem, scope: PairScope) -> tuple[np.ndarray, np.ndarray] | None:
             ca, cv = neighbour_edges(mem)
             a, b = ca // mem.bits, cv // mem.bits
             keep = a != b
-            key = np.unique(a[keep] * n + b[keep])
+            key = _unique(a[keep] * n + b[keep])
             a, b = key // n, key % n
         elif part[0] == "word":
             continue
@@ -267,7 +279,7 @@ def word_pairs(mem, scope: PairScope) -> tuple[np.ndarray, np.ndarray] | None:
     a = np.concatenate(a_parts)
     b = np.concatenate(b_parts)
     if len(a_parts) > 1:
-        key = np.unique(a * n + b)
+        key = _unique(a * n + b)
         a, b = key // n, key % n
     return a, b
 

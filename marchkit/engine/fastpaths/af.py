@@ -6,18 +6,18 @@ from __future__ import annotations
 import numpy as np
 
 from ...faults import Instance
-from ..setup import dense_codes as _dense_codes
+from ..setup import dense_codes
 from ..core import verdict
 from ..results import KindResult
 from .base import FastPath
 from .rules import AFIRST, VFIRST
 
 
-def dense_codes_first(x):
-    return _dense_codes(x)
-
-
 class DecoderFast(FastPath):
+    """Keys: a word's key ``wk`` (n,) int64 numbers its data in every run (``prep.word_keys()``,
+    with a representative word (U,) int64 per key); pair counts per (structure, key a, key b)
+    are (U, U) int64 tables from the shared set-up.  One oracle run per key and kind."""
+
     def _af_verdict(self, eng, kind, a, b=None):
         inst = Instance(kind, (a,) if b is None else (a, b))
         ctx = eng.projected_context(inst.sites)
@@ -72,7 +72,7 @@ class DecoderFast(FastPath):
         for a, b in prep.setup.word_pair_chunks(scope):
             st = np.where(prep.rank[a] < prep.rank[b], AFIRST, VFIRST)
             code = (st * U + wk[a]) * U + wk[b]
-            inv, first = dense_codes_first(code)
+            _, first = dense_codes(code)
             for i in first:
                 key = (int(st[i]), int(wk[a[i]]), int(wk[b[i]]))
                 if key in want and key not in out:

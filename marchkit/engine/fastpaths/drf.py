@@ -29,7 +29,16 @@ def _columns(prep):
 
 
 def _visit_times(prep, si, up):
-    """(n, 1) int64: cycle of the first op of each word's visit in segment ``si``."""
+    """(n, 1) int64: cycle of the start of each word's visit in segment ``si`` (cached)."""
+    cache = prep.__dict__.setdefault("_visit_cache", {})
+    if (si, up) not in cache:
+        if len(cache) > 8:
+            cache.clear()
+        cache[(si, up)] = _visit_times_uncached(prep, si, up)
+    return cache[(si, up)]
+
+
+def _visit_times_uncached(prep, si, up):
     seg = prep.sched.segments[si]
     pos = prep.rank if up else prep.n - 1 - prep.rank
     return (seg.start + pos.astype(np.int64) * seg.per_address)[:, None]
@@ -54,24 +63,27 @@ class RetentionFast(FastPath):
         segs = prep.sched.segments
 
         def run_seg(si, up, val, last, first, code=True):
-            """One element segment from (val (n, C, ...) int8, last (n, 1, ...) int64)."""
+            """One element segment from ``val`` (n, C) int8 and ``last`` (n, 1) int64 (the
+            last access of each word); ``first`` (n, C) gets the first detection (a code, or 1
+            when ``code`` is false) where still -1.  Only a visit's first op has a per-word gap
+            since the last access; the later ops of the visit follow at fixed offsets."""
             seg = segs[si]
-            base = _visit_times(prep, si, up)
-            if val.ndim == 3:
-                base = base[:, :, None]
-            data0 = data_r[seg.run] if val.ndim == 2 else data_r[seg.run][:, :, None]
+            offs = seg.op_offsets
+            t0 = _visit_times(prep, si, up) + offs[0]
+            data0 = data_r[seg.run]
+            lost = np.int8(1 - x)
             for k, kindop in enumerate(seg.op_kinds):
-                t = base + seg.op_offsets[k]
-                decayed = (val == x) & ((t - last) >= tau)
-                val = np.where(decayed, np.int8(1 - x), val)
-                last = t
+                if k == 0:
+                    val = np.where((val == x) & ((t0 - last) >= tau), lost, val)
+                elif offs[k] - offs[k - 1] >= tau:
+                    val = np.where(val == x, lost, val)
                 data = data0 ^ np.int8(seg.op_values[k])
                 if kindop == "w":
                     val = np.broadcast_to(data, val.shape).astype(np.int8)
                 elif (si, k) in prep.determined:
                     det = (val != data) & (first < 0)
                     first[det] = si * maxk + k if code else 1
-            return val, last
+            return val, t0 + (offs[-1] - offs[0])
 
         # canonical scenario, ⇕ as ⇑.  Initial contents cannot matter: every counted read of
         # the cell comes after a write to it, and that write restores the cell whatever it held.
@@ -91,23 +103,38 @@ class RetentionFast(FastPath):
                 if seg.element is not None:
                     prev[si] = p
                     p = si
-            # state s = value + 2·(previous element ran ⇑)
-            sval = np.array([0, 1, 0, 1], dtype=np.int8)
-
+            # state s = value + 2·(previous element ran ⇑).  Only the first op of a visit
+            # looks at the last access (whether the cell decays before it); after it the run
+            # depends on the (possibly decayed) value alone: so run each element from the two
+            # values with no decay at its first op, and pick per state.
             def transition(si, up):
+                """(end state (n·C, 4) int8, detected (n·C, 4) bool) of segment ``si`` run ⇑/⇓."""
+                seg = segs[si]
+                t0 = _visit_times(prep, si, up) + seg.op_offsets[0]          # (n, 1) int64
                 psi = prev[si]
                 if psi is None:
-                    last0 = np.zeros((n, 1, 4), dtype=np.int64)
+                    lasts = (np.zeros((n, 1), dtype=np.int64),) * 2
                 else:
-                    lseg = segs[psi]
-                    off = lseg.op_offsets[-1]
-                    last0 = np.stack([_visit_times(prep, psi, False) + off] * 2
-                                     + [_visit_times(prep, psi, True) + off] * 2, axis=2)
-                v0 = np.broadcast_to(sval, (n, C, 4)).astype(np.int8)
-                f = np.full((n, C, 4), -1, dtype=np.int8)
-                v1, _ = run_seg(si, up, v0, last0, f, code=False)
-                end = v1.astype(np.intp) + (2 if up else 0)
-                return end.reshape(n * C, 4), (f >= 0).reshape(n * C, 4)
+                    off = segs[psi].op_offsets[-1]
+                    lasts = (_visit_times(prep, psi, False) + off, _visit_times(prep, psi, True) + off)
+                ends, dets = [], []
+                for v in (0, 1):
+                    f = np.full((n, C), -1, dtype=np.int8)
+                    v1, _ = run_seg(si, up, np.full((n, C), v, dtype=np.int8), t0, f, code=False)
+                    ends.append(v1 + np.int8(2 if up else 0))
+                    dets.append(f >= 0)
+                end = np.empty((n, C, 4), dtype=np.int8)
+                det = np.empty((n, C, 4), dtype=bool)
+                for st in range(4):
+                    v, pu = st & 1, st >> 1
+                    if v == x:           # the lost value: decays if the gap is at least τ
+                        flip = (t0 - lasts[pu]) >= tau                         # (n, 1) bool
+                        end[..., st] = np.where(flip, ends[1 - x], ends[x])
+                        det[..., st] = np.where(flip, dets[1 - x], dets[x])
+                    else:
+                        end[..., st] = ends[v]
+                        det[..., st] = dets[v]
+                return end.reshape(n * C, 4), det.reshape(n * C, 4)
 
             reach = np.zeros((n * C, 4), dtype=bool)
             reach[:, 1 - x] = True

@@ -22,7 +22,11 @@ STRUCTURES = {SINGLE: "single", AFIRST: "aggressor first", VFIRST: "victim first
 
 
 def _rule_params(kinds):
-    """Parameter arrays (slots × kinds) describing each kind's rules."""
+    """Parameter arrays describing each kind's rules: ``{name: (S, M) int8}`` for S rule slots
+    (the most rules of any kind) × M kinds — ``rt`` the rule type (0 none, 1 state, 2 victim
+    op, 3 aggressor op, 4 victim op with aggressor state, 5 two states, 6 dynamic), the
+    aggressor's and victim's ``pre``/``op`` (0 none, 1 w, 2 r)/``val``, ``f``, ``r``, and the
+    dynamic second operation's ``t_pre``/``t_op``/``t_val``."""
     S = max(len(k.rules) for k in kinds)
     M = len(kinds)
     P = {name: np.zeros((S, M), dtype=np.int8) for name in
@@ -202,6 +206,7 @@ def rules_batch(prep, structure, kind_idx, params, bga, bgv):
         sv = np.broadcast_to(init_v, (M, NS)).copy()
 
         def transition(si, up):
+            """(end state (M, NS) intp, detected (M, NS) bool) of segment ``si`` from each state."""
             f = np.full((M, NS), -1, dtype=np.int64)
             ea, ev_ = b.run(_seg_events(prep, si, structure, up), sa.copy(), sv.copy(), f)
             end = (ea.astype(np.intp) << 1 | ev_) if two else ev_.astype(np.intp)
@@ -237,7 +242,10 @@ class RulesFast(FastPath):
             eng.prep.setup.pair_counts(scope)
 
     def _rules_tables(self, eng, kinds):
-        """verdict tables: {structure: (det[kind, ka, kv], event[kind, ka, kv], events)}."""
+        """Verdict tables ``{structure: (det, event, events)}``: ``det`` (M kinds, K, K) bool and
+        ``event`` (M, K, K) int64 (index into ``events``, the canonical event list, or -1) per
+        (kind, aggressor key, victim key); only the keys present in ``eng.scratch['present']``
+        ((K, K) bool per structure) are simulated."""
         prep = eng.prep
         K = prep.K
         params = _rule_params(kinds)

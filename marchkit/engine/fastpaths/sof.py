@@ -13,6 +13,9 @@ from .base import FastPath
 
 
 class StuckOpenFast(FastPath):
+    """Keys from ``prep.setup.sof_keys()``: count (U,) int64 and representative cell (U,)
+    int64 per key; one oracle run on the projected words per key and kind."""
+
     def prepare(self, eng, kinds, scope):
         eng.prep.setup.sof_keys()
 
