@@ -196,7 +196,9 @@ def test_long_repeats_equal_the_literal_run_for_other_families(data):
     assert [r[0] for r in ref] == [f[0] for f in fast]
     res = Engine(test, mem, sched).grade(type("S", (), {"kinds": tuple(kinds)})(), scope)
     for k, rr in zip(kinds, res):
-        assert rr.detected == sum(r[0] for i, r in zip(insts, ref) if i.kind == k) or rr.instances > 200
+        mine = [r[0] for i, r in zip(insts, ref) if i.kind == k]
+        if len(mine) == rr.instances:             # every instance of the kind was compared
+            assert rr.detected == sum(mine)
 
 
 # ---------------------------------------------------------------------------------------
