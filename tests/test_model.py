@@ -623,8 +623,8 @@ def test_unknown_key_has_line_column_and_caret(tmp_path):
     text = e.render()
     lines = text.split("\n")
     assert lines[0] == f"{p}:3:3: error: unknown key 'wrods'; a memory file knows: " + \
-        "backgrounds, bits, clock, mux, name, neighbours, order, read_cycles, scramble_bits, " \
-        "scramble_xor, words, write_cycles"
+        "backgrounds, bits, clock, mux, name, neighbours, order, page, read_cycles, refresh, " \
+        "refresh_during_delays, refresh_scheme, scramble_bits, scramble_xor, words, write_cycles"
     assert lines[1] == "      wrods = 16"
     assert lines[2] == "      ^^^^^"
     assert e.exit_code == 2

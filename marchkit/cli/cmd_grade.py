@@ -49,7 +49,18 @@ def memory_line(mem) -> str:
     bgs = background_names(mem)
     return (f"{name}{mem.words} × {mem.bits} bit{'s' if mem.bits > 1 else ''}, mux {mem.mux} "
             f"({mem.rows} rows × {mem.columns} columns{scr}), order {mem.order}, "
-            f"background{'s' if len(bgs) > 1 else ''} {', '.join(bgs)}, {fmt_clock(mem.clock_hz)}")
+            f"background{'s' if len(bgs) > 1 else ''} {', '.join(bgs)}, {fmt_clock(mem.clock_hz)}"
+            + dram_text(mem))
+
+
+def dram_text(mem) -> str:
+    if not mem.dram:
+        return ""
+    from ..faults import format_seconds
+
+    return (f", DRAM: refresh {format_seconds(mem.refresh)} {mem.refresh_scheme}"
+            f"{', running during delays' if mem.refresh_during_delays else ', suspended during delays'}, "
+            f"{mem.page} page")
 
 
 def element_label(test, index) -> str:
@@ -81,7 +92,7 @@ def make_progress(enabled: bool):
 def run(args) -> int:
     from ..grade import grade
     from ..notation import format_notation
-    from .common import console, load_test, memory_from_args, retention_from_args
+    from .common import console, load_test, memory_from_args, retention_from_args, thresholds_from_args
 
     mem = memory_from_args(args)
     if args.engine == "fast":          # a size the engine refuses is refused before anything else
@@ -89,14 +100,15 @@ def run(args) -> int:
 
         check_limits(mem)
     test = load_test(args.test)
+    thresholds = thresholds_from_args(args)
     prog, cb = make_progress(sys.stderr.isatty() and not args.json)
     if prog:
         with prog:
             res = grade(test, mem, args.faults, args.pairs, retention_from_args(args), args.engine, cb,
-                        examples=args.missed)
+                        examples=args.missed, thresholds=thresholds)
     else:
         res = grade(test, mem, args.faults, args.pairs, retention_from_args(args), args.engine,
-                    examples=args.missed)
+                    examples=args.missed, thresholds=thresholds)
     if args.report:
         from ..report import write_html_report
 
@@ -109,9 +121,31 @@ def run(args) -> int:
         print(json.dumps(res.to_json(), indent=2, ensure_ascii=False))
         return 0
     show_result(res, console(), primitives=args.primitives)
+    show_retention(res, console(), getattr(args, "retention_spread", None))
     if args.report:
         console().print(f"report written to {args.report}")
     return 0
+
+
+def show_retention(res, con, spread_text=None) -> None:
+    """Retention per τ (when several are graded) and, for a spread, the weak cells caught."""
+    from rich.table import Table
+
+    from ..faults import format_seconds
+    from ..grade.spread import expected_caught, parse_spread, per_tau
+
+    rows = per_tau(res.kinds)
+    if len(rows) > 1 or spread_text:
+        tt = Table(title="retention per τ", title_justify="left", show_edge=False, pad_edge=False)
+        for col in ("τ", "cells × values", "detected", "coverage"):
+            tt.add_column(col, justify="left" if col == "τ" else "right")
+        for r in rows:
+            tt.add_row(format_seconds(r.tau), f"{r.instances:,}", f"{r.detected:,}", f"{100 * r.coverage:.4g}%")
+        con.print(tt)
+    if spread_text:
+        sp = parse_spread(spread_text)
+        con.print(f"weak cells caught (expected, retention spread {sp.text}, {len(sp.taus)} points): "
+                  f"{100 * expected_caught(rows, sp.taus):.4g}%")
 
 
 def show_result(res, con, primitives=False) -> None:

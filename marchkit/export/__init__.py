@@ -24,6 +24,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from ..errors import OutputError
+from ..model.timing import EXPAND_LIMIT
 from .stream import Plan, Vector, expand
 
 FORMATS = ("csv", "jsonl", "stil", "vcd", "hex")
@@ -118,6 +119,12 @@ def export(test, mem, out: str, fmt: str | None = None, *, physical: bool = Fals
         raise OutputError("a stuck-at cell can only be injected with --format hex (into its SRAM model)")
     check_stuck(mem, stuck)
     plan = Plan(test, mem, physical=physical)
+    if plan.looped and fmt != "stil":
+        longest = max(op.repeat for e in test.elements for op in e.ops)
+        raise OutputError(
+            f"this test repeats an operation {longest:,} times in a row ({plan.cycles:,} cycles in all); "
+            f"{fmt} writes every clock cycle, so it takes at most {EXPAND_LIMIT:,} operations per address "
+            "visit — export it as stil (repeats become loops) or shorten the repeat")
     paths = [out]
     tb_path = sram_path = None
     streamed = out == "-" or (Path(out).exists() and not Path(out).is_file() and not Path(out).is_dir())

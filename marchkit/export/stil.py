@@ -145,6 +145,11 @@ def write_stil(plan, f, **_) -> dict:
         if seg.run != last_run:
             f.write(f"    Ann {{* run {seg.run}: background {ann_text(plan.run_names[seg.run])} *}}\n".encode())
             last_run = seg.run
+        if getattr(b, "looped", False):
+            v, lo = _write_looped(plan, seg, f, x_d, zero_d)
+            vectors += v
+            loops += lo
+            continue
         if b.is_idle:
             item = plan.test.items[seg.item]
             f.write(f"    Ann {{* {ann_text(format_item(item, ascii=True))}: {b.count} idle cycles *}}\n".encode())
@@ -177,3 +182,42 @@ def write_stil(plan, f, **_) -> dict:
         vectors += b.count
     f.write(b"}\n")
     return {"vectors": vectors, "loops": loops}
+
+
+def _write_looped(plan, seg, f, x_d, zero_d):
+    """An element with hammer-length repeats, visit by visit, each run of copies of an
+    operation as ``Loop N { ... }`` around the vectors of one copy (so the file grows with
+    the number of addresses, not with the repeat count)."""
+    from ..notation.printer import format_item
+
+    mem = plan.mem
+    A, B = plan.address_bits, plan.bits
+    el = plan.test.elements[seg.element]
+    note = " run as up" if seg.order == "any" else ""
+    f.write(f"    Ann {{* element {seg.element} {ann_text(format_item(el, ascii=True))}{note} *}}\n".encode())
+    n = mem.words
+    words = plan.words[seg.run]
+    cls_up = plan.cls_up[seg.run]
+    vectors = loops = 0
+    for p in range(n):
+        i = n - 1 - p if seg.down else p
+        addr = format(int(plan.addr_up[i]), f"0{A}b")
+        cls = int(cls_up[i])
+        parts = []
+        for r, compared in zip(seg.runs, seg.compared):
+            word = words[2 * cls + r.value]
+            d = format(word, f"0{B}b")
+            if r.kind == "w":
+                one = [f"V {{ CLK=P; ADDR={addr}; DIN={d}; WE=1; RE=0; DOUT={x_d}; }}"] * r.each
+            else:
+                hl = d.replace("0", "L").replace("1", "H") if compared else x_d
+                one = ([f"V {{ CLK=P; ADDR={addr}; DIN={zero_d}; WE=0; RE=1; DOUT={x_d}; }}"] * (r.each - 1)
+                       + [f"V {{ CLK=P; ADDR={addr}; DIN={zero_d}; WE=0; RE=1; DOUT={hl}; }}"])
+            if r.repeat == 1:
+                parts += [f"    {v}\n" for v in one]
+            else:
+                parts.append(f"    Loop {r.repeat} {{ " + " ".join(one) + " }\n")
+                loops += 1
+            vectors += len(one)
+        f.write("".join(parts).encode())
+    return vectors, loops

@@ -34,6 +34,7 @@ from typing import Iterator, NamedTuple
 import numpy as np
 
 from ..errors import OutputError
+from ..model.timing import EXPAND_LIMIT
 
 CHUNK = 1 << 16          # cycles per block (read when a stream starts: tests make it small)
 
@@ -91,6 +92,47 @@ class DelayPlan:
     seconds: object         # Fraction
 
     is_delay = True
+
+
+@dataclass(frozen=True)
+class LoopedPlan:
+    """An element whose address visit is too long to spell out cycle by cycle (more than
+    ``EXPAND_LIMIT`` operations): only writers that can loop (STIL) take it, visit by visit,
+    each run of copies as a loop."""
+
+    index: int
+    run: int
+    item: int
+    element: int
+    order: str
+    start: int
+    cycles: int
+    per_address: int
+    runs: tuple              # model.OpRun per operation as written
+    compared: tuple          # per run: its reads are compared
+
+    is_delay = False
+    looped = True
+
+    @property
+    def down(self) -> bool:
+        return self.order == "down"
+
+
+@dataclass
+class LoopedBlock:
+    """A whole looped element (see :class:`LoopedPlan`)."""
+
+    seg: LoopedPlan
+    start: int
+    count: int
+
+    is_idle = False
+    looped = True
+
+    @property
+    def run(self) -> int:
+        return self.seg.run
 
 
 class OpBlock:
@@ -261,6 +303,13 @@ class Plan:
                 item = test.items[s.item]
                 segs.append(DelayPlan(si, s.run, s.item, s.start, s.cycles, item.seconds))
                 continue
+            if s.ops_per_visit > EXPAND_LIMIT:      # hammer-length repeats: loops only
+                from ..model import is_compared
+
+                segs.append(LoopedPlan(si, s.run, s.item, s.element, s.order, s.start, s.cycles,
+                                       s.per_address, s.runs,
+                                       tuple(r.kind == "r" and is_compared(self.sched, si, r.first) for r in s.runs)))
+                continue
             P = s.per_address
             slot_op = np.empty(P, np.int64)
             slot_value = np.empty(P, np.int64)
@@ -311,7 +360,13 @@ class Plan:
 
     @property
     def max_ops(self) -> int:
-        return max((s.ops for s in self.segments if not s.is_delay), default=1)
+        return max((s.ops if hasattr(s, "ops") else sum(r.repeat for r in s.runs)
+                    for s in self.segments if not s.is_delay), default=1)
+
+    @property
+    def looped(self) -> bool:
+        """Some element can only be written with loops (STIL)."""
+        return any(getattr(s, "looped", False) for s in self.segments)
 
     def describe(self) -> str:
         from ..notation import format_notation
@@ -334,6 +389,9 @@ class Plan:
             if seg.is_delay:
                 if seg.cycles:
                     yield IdleBlock(seg, seg.start, seg.cycles)
+                continue
+            if getattr(seg, "looped", False):
+                yield LoopedBlock(seg, seg.start, seg.cycles)
                 continue
             yield from self._element_blocks(seg, chunk, split10)
 

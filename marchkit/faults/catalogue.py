@@ -87,14 +87,21 @@ class FaultSelection:
         return tuple(seen)
 
 
-def select_faults(spec: str = "static", retention=DEFAULT_RETENTION) -> FaultSelection:
+def select_faults(spec: str = "static", retention=DEFAULT_RETENTION, thresholds=None) -> FaultSelection:
+    from .dram import DEFAULT_THRESHOLD, disturb_kinds, parse_thresholds, retention_kinds
+
     retention = tuple(Fraction(t) for t in retention)
+    thresholds = parse_thresholds(thresholds if thresholds is not None else DEFAULT_THRESHOLD)
     kinds: dict[str, FaultKind] = {}
     for raw in _split(spec):
         part = raw.strip()
         low = part.lower()
         got = None
-        if low in GROUP_WORDS:
+        if low == "disturb":
+            got = disturb_kinds(thresholds)
+        elif low == "dram":                 # retention with refresh and disturb
+            got = retention_kinds(retention) + disturb_kinds(thresholds)
+        elif low in GROUP_WORDS:
             got = _group(low, retention)
         else:
             for f in FAMILIES:
@@ -109,11 +116,13 @@ def select_faults(spec: str = "static", retention=DEFAULT_RETENTION) -> FaultSel
             for f in FAMILIES:
                 for k in f.kinds(retention):
                     named.setdefault(k.text.lower(), k)
+            for k in disturb_kinds(thresholds):
+                named.setdefault(k.text.lower(), k)
             if low in named:
                 got = (named[low],)
             else:
                 raise FaultSpecError(
-                    f"unknown fault selection {part!r}; use {', '.join(GROUP_WORDS[:-1])}, all, "
+                    f"unknown fault selection {part!r}; use {', '.join(GROUP_WORDS[:-1])}, disturb, dram, all, "
                     "a class (" + ", ".join(all_classes()) +
                     "), a kind such as SA0 or AF:alias, or a primitive such as <0w1/0/->"
                 )

@@ -179,6 +179,7 @@ class FaultKind:
     af: str | None = None          # none | alias | multi | cross
     drf_value: int | None = None   # the value the cell loses
     tau: Fraction | None = None    # seconds
+    threshold: int | None = None   # disturb: aggressor-row activations that flip the victim
     params: tuple = ()
     description: str = field(default="", compare=False)
 

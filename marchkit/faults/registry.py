@@ -7,7 +7,7 @@ fault family").  The catalogue, the grader, the CLI and both engines find it her
 
 from __future__ import annotations
 
-from . import decoder, group, primitives, retention, stuck_open
+from . import decoder, disturb, group, primitives, retention, retention_refresh, stuck_open
 
 FAMILIES = (
     primitives.FAMILY,
@@ -16,6 +16,8 @@ FAMILIES = (
     retention.FAMILY,
     group.LINKED3,
     group.NPSF_FAMILY,
+    retention_refresh.FAMILY,
+    disturb.FAMILY,
 )
 
 _BY_NAME = {f.name: f for f in FAMILIES}

@@ -131,7 +131,7 @@ def grade_kinds(test, mem, selection, scope, engine="fast", sched=None, progress
 
 
 def grade(test, mem, faults="static", pairs="neighbours", retention=None, engine="fast", progress=None,
-          examples: int = 0) -> GradeResult:
+          examples: int = 0, thresholds=None) -> GradeResult:
     """Grade ``test`` on ``mem`` against a fault selection (text or FaultSelection).
 
     ``examples`` > 0 names that many undetected instances per fault kind
@@ -141,7 +141,12 @@ def grade(test, mem, faults="static", pairs="neighbours", retention=None, engine
     from ..notation import ensure_consistent
 
     ensure_consistent(test)
-    selection = select_faults(faults, retention or DEFAULT_RETENTION) if isinstance(faults, str) else faults
+    selection = (select_faults(faults, retention or DEFAULT_RETENTION, thresholds)
+                 if isinstance(faults, str) else faults)
+    from ..faults import FaultSelection
+    from ..faults.dram import adapt_kinds
+
+    selection = FaultSelection(adapt_kinds(selection.kinds, mem, test), selection.spec)
     scope = parse_pairs(pairs) if isinstance(pairs, str) else pairs
     from ..faults.group import check_triples
 

@@ -4,12 +4,13 @@ from .backgrounds import background_array, background_names, background_stack, i
 from .build import load_memory_file, make_memory, with_changes
 from .geometry import Memory, neighbour_edges, neighbour_graph
 from .orders import address_order, lfsr_sequence, parse_order, ranks
-from .timing import (Schedule, Segment, compared_reads, op_cycle, parse_duration, parse_frequency, schedule,
-                     seconds_to_cycles)
+from .timing import (EXPAND_LIMIT, OpRun, Schedule, Segment, compared_reads, first_write, is_compared, op_cycle, parse_duration,
+                     parse_frequency, schedule, seconds_to_cycles)
 
 __all__ = [
     "Memory", "make_memory", "load_memory_file", "with_changes", "neighbour_edges",
     "neighbour_graph", "address_order", "lfsr_sequence", "parse_order", "ranks",
     "background_array", "background_names", "background_stack", "intra_word_words",
-    "Schedule", "Segment", "compared_reads", "op_cycle", "schedule", "parse_duration", "parse_frequency", "seconds_to_cycles",
+    "EXPAND_LIMIT", "OpRun", "Schedule", "Segment", "compared_reads", "first_write", "is_compared", "op_cycle", "schedule", "parse_duration",
+    "parse_frequency", "seconds_to_cycles",
 ]

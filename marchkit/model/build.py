@@ -16,6 +16,10 @@ TOML_KEYS = {
     "backgrounds": (list, str), "clock": (str, int, float), "read_cycles": int,
     "write_cycles": int, "scramble_bits": list, "scramble_xor": (int, str), "neighbours": int,
 }
+# DRAM keys (model/dram.py), kept in their own table
+from .dram import DRAM_KEYS  # noqa: E402
+
+TOML_KEYS.update(DRAM_KEYS)
 
 
 class MemoryFileError(PositionedError, ModelError):
@@ -32,7 +36,8 @@ def parse_int_list(text: str) -> tuple[int, ...]:
 def make_memory(words: int, bits: int = 1, *, mux: int = 1, order: str = "linear",
                 backgrounds=("solid",), clock="100MHz", read_cycles: int = 1,
                 write_cycles: int = 1, scramble_bits=None, scramble_xor=0,
-                neighbours: int = 8, name: str = "") -> Memory:
+                neighbours: int = 8, name: str = "", refresh=0, refresh_scheme: str = "distributed",
+                refresh_during_delays=False, page: str = "closed") -> Memory:
     """A validated memory.  ``clock`` may be a frequency text (``200MHz``) or Hz."""
     if isinstance(backgrounds, str):
         backgrounds = tuple(b for b in backgrounds.split(",") if b.strip())
@@ -50,8 +55,19 @@ def make_memory(words: int, bits: int = 1, *, mux: int = 1, order: str = "linear
         scramble_xor=int(scramble_xor), order=order, backgrounds=tuple(backgrounds),
         clock_hz=clock_hz, read_cycles=int(read_cycles), write_cycles=int(write_cycles),
         neighbours=int(neighbours), name=name,
+        **_dram_fields(refresh, refresh_scheme, refresh_during_delays, page),
     )
     return m.validate()
+
+
+def _dram_fields(refresh, scheme, during, page) -> dict:
+    from .dram import parse_refresh, parse_yes_no
+
+    return dict(
+        refresh=parse_refresh(refresh), refresh_scheme=str(scheme).strip().lower(),
+        refresh_during_delays=parse_yes_no(during, "refresh during delays"),
+        page=str(page).strip().lower(),
+    )
 
 
 def _key_pos(text: str, key: str, filename: str) -> SourcePos | None:
@@ -64,6 +80,11 @@ def _key_pos(text: str, key: str, filename: str) -> SourcePos | None:
 
 # which file key a validation message is about: the first fragment found in the message wins
 _MESSAGE_KEYS = (
+    ("refresh scheme", ("refresh_scheme",)),
+    ("refresh during", ("refresh_during_delays",)),
+    ("refresh period", ("refresh",)),
+    ("duration", ("refresh",)),
+    ("page", ("page",)),
     ("reads and writes", ("read_cycles", "write_cycles")),
     ("column mux", ("mux",)),
     ("XOR", ("scramble_xor",)),
@@ -117,7 +138,7 @@ def load_memory_file(path: str | Path, **overrides) -> Memory:
                 _key_pos(text, key, str(p)), text,
             )
         want = TOML_KEYS[key]
-        if not isinstance(value, want) or isinstance(value, bool):
+        if not isinstance(value, want) or (isinstance(value, bool) and key != "refresh_during_delays"):
             raise MemoryFileError(f"{key} has the wrong type ({type(value).__name__})", _key_pos(text, key, str(p)), text)
         if isinstance(value, list):
             item = int if key == "scramble_bits" else str

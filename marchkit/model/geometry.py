@@ -42,6 +42,15 @@ class Memory:
     write_cycles: int = 1
     neighbours: int = 8            # 4: N/S/E/W; 8: and the diagonals
     name: str = ""
+    # ---- DRAM (see model/dram.py); refresh 0 = no refresh, an SRAM ----------------------
+    refresh: Fraction = Fraction(0)          # refresh period, seconds
+    refresh_scheme: str = "distributed"      # distributed | burst
+    refresh_during_delays: bool = False      # a delay of the test normally suspends refresh
+    page: str = "closed"                     # closed | open
+
+    @property
+    def dram(self) -> bool:
+        return bool(self.refresh)
 
     # ---- derived geometry -------------------------------------------------------------
     @property
@@ -101,6 +110,9 @@ class Memory:
 
         address_order(self, check_only=True)
         background_names(self)
+        from .dram import check_dram
+
+        check_dram(self)
         return self
 
     # ---- address map ------------------------------------------------------------------
@@ -159,6 +171,9 @@ class Memory:
             "read_cycles": self.read_cycles,
             "write_cycles": self.write_cycles,
             "neighbours": self.neighbours,
+            **({"refresh_s": float(self.refresh), "refresh_scheme": self.refresh_scheme,
+                "refresh_during_delays": self.refresh_during_delays, "page": self.page}
+               if self.dram else {}),
         }
 
 

@@ -7,15 +7,41 @@ idle cycles.  The test runs once per data background, one run after the other.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import cached_property
 from fractions import Fraction
 
 
 from ..units import parse_duration, parse_frequency, seconds_to_cycles  # noqa: F401  (re-exported)
 
 
+EXPAND_LIMIT = 1 << 16      # operations per address visit the spelled-out views may hold
+
+
+@dataclass(frozen=True)
+class OpRun:
+    """``repeat`` back-to-back copies of one operation in an address visit."""
+
+    kind: str                   # 'r' | 'w'
+    value: int                  # 0 | 1
+    repeat: int
+    offset: int                 # cycle offset of the first copy in the visit
+    each: int                   # cycles of one copy
+    first: int                  # index of the first copy among the visit's operations
+
+    @property
+    def end(self) -> int:
+        return self.offset + self.repeat * self.each
+
+
 @dataclass(frozen=True)
 class Segment:
-    """One element (or delay) of one background run, placed in time."""
+    """One element (or delay) of one background run, placed in time.
+
+    ``runs`` is the closed form (one entry per operation as written, repeats as counts);
+    ``op_offsets``/``op_kinds``/``op_values`` spell the repeats out and exist only for
+    visits of at most :data:`EXPAND_LIMIT` operations (the time-dependent DRAM families and
+    the exporter work from ``runs``; the other families grade an equivalent shorter test).
+    """
 
     run: int
     item: int                   # index in test.items
@@ -23,10 +49,45 @@ class Segment:
     order: str | None           # 'up' | 'down' | 'any' (None for a delay)
     start: int                  # first cycle
     per_address: int            # cycles one address takes (0 for a delay)
-    op_offsets: tuple[int, ...]  # cycle offset of each (expanded) op in an address visit
-    op_kinds: tuple[str, ...]    # 'r' / 'w' per expanded op
-    op_values: tuple[int, ...]   # 0 / 1 per expanded op
+    runs: tuple[OpRun, ...]     # the operations of one address visit, repeats as counts
     cycles: int                 # cycles of the whole segment
+
+    @property
+    def ops_per_visit(self) -> int:
+        return sum(r.repeat for r in self.runs)
+
+    @cached_property
+    def _expanded(self):
+        n = self.ops_per_visit
+        if n > EXPAND_LIMIT:
+            from ..errors import EngineLimitError
+
+            raise EngineLimitError(
+                f"an address visit of {n:,} operations is only handled in closed form "
+                f"(at most {EXPAND_LIMIT:,} are spelled out)"
+            )
+        offs, kinds, vals = [], [], []
+        for r in self.runs:
+            for i in range(r.repeat):
+                offs.append(r.offset + i * r.each)
+                kinds.append(r.kind)
+                vals.append(r.value)
+        return tuple(offs), tuple(kinds), tuple(vals)
+
+    @property
+    def op_offsets(self) -> tuple[int, ...]:
+        """Cycle offset of each (expanded) op in an address visit."""
+        return self._expanded[0]
+
+    @property
+    def op_kinds(self) -> tuple[str, ...]:
+        """'r' / 'w' per expanded op."""
+        return self._expanded[1]
+
+    @property
+    def op_values(self) -> tuple[int, ...]:
+        """0 / 1 per expanded op."""
+        return self._expanded[2]
 
 
 @dataclass(frozen=True)
@@ -56,39 +117,62 @@ def schedule(test, mem, runs: int | None = None) -> Schedule:
         for ii, item in enumerate(test.items):
             if hasattr(item, "ops"):
                 ei += 1
-                offs, kinds, vals = [], [], []
+                oruns = []
                 c = 0
-                for op in item.expanded():
-                    offs.append(c)
-                    kinds.append(op.kind)
-                    vals.append(op.value)
-                    c += mem.read_cycles if op.kind == "r" else mem.write_cycles
+                k = 0
+                for op in item.ops:
+                    each = mem.read_cycles if op.kind == "r" else mem.write_cycles
+                    oruns.append(OpRun(op.kind, op.value, op.repeat, c, each, k))
+                    c += each * op.repeat
+                    k += op.repeat
                 total = c * mem.words
-                segs.append(Segment(run, ii, ei, item.order, t, c, tuple(offs), tuple(kinds), tuple(vals), total))
+                segs.append(Segment(run, ii, ei, item.order, t, c, tuple(oruns), total))
                 t += total
-                ops += len(offs) * mem.words
+                ops += k * mem.words
             else:
                 d = seconds_to_cycles(item.seconds, mem.clock_hz)
-                segs.append(Segment(run, ii, None, None, t, 0, (), (), (), d))
+                segs.append(Segment(run, ii, None, None, t, 0, (), d))
                 t += d
     return Schedule(tuple(segs), t, ops, mem.clock_hz, runs)
 
 
+def first_write(sched) -> tuple[int, int] | None:
+    """(segment index, op index) of the test's first write, or None."""
+    for si, seg in enumerate(sched.segments):
+        for r in seg.runs:
+            if r.kind == "w":
+                return si, r.first
+    return None
+
+
 def compared_reads(sched) -> set[tuple[int, int]]:
     """(segment index, op index) of the reads whose value is compared: those after the test's
-    first write (reads before it expect nothing, the cells never having been written)."""
+    first write (reads before it expect nothing, the cells never having been written).
+    Segments whose visits are too long to spell out (:data:`EXPAND_LIMIT`) are left out: ask
+    :func:`is_compared` about them."""
     out = set()
-    seen_write = False
+    fw = first_write(sched)
+    if fw is None:
+        return out
     for si, seg in enumerate(sched.segments):
-        for k, kind in enumerate(seg.op_kinds):
-            if kind == "w":
-                seen_write = True
-            elif seen_write:
-                out.add((si, k))
+        if seg.ops_per_visit > EXPAND_LIMIT:
+            continue
+        for r in seg.runs:
+            if r.kind == "r":
+                out.update((si, k) for k in range(r.first, r.first + r.repeat) if (si, k) > fw)
     return out
+
+
+def is_compared(sched, si: int, k: int) -> bool:
+    """Whether read ``k`` of segment ``si`` is compared (closed form of :func:`compared_reads`)."""
+    fw = first_write(sched)
+    return fw is not None and (si, k) > fw
 
 
 def op_cycle(seg, k: int, pos):
     """Cycle of op ``k`` of segment ``seg`` at position ``pos`` of the order the segment runs in
     (``pos`` an int or an integer numpy array)."""
-    return seg.start + pos * seg.per_address + seg.op_offsets[k]
+    for r in seg.runs:                   # closed form: no spelled-out repeats
+        if r.first <= k < r.first + r.repeat:
+            return seg.start + pos * seg.per_address + r.offset + (k - r.first) * r.each
+    raise IndexError(k)

@@ -16,7 +16,7 @@ from ..units import SECONDS_PER_UNIT
 
 ORDERS = ("up", "down", "any")
 UNITS = SECONDS_PER_UNIT
-MAX_REPEAT = 65536
+MAX_REPEAT = 1_000_000_000     # hammer-length repeats; graded and exported in closed form
 
 
 @dataclass(frozen=True)

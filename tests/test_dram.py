@@ -1,0 +1,429 @@
+"""DRAM: refresh, retention with refresh, read disturb (row hammer), hammer-length repeats.
+
+* Closed-form refresh facts against a literal listing of refresh slots.
+* Both DRAM families: the fast path against the literal oracle, instance by instance
+  (hypothesis), on small memories with refresh slots, both page policies, both refresh
+  schemes, suspended or running refresh during delays, and long repeats.
+* Time-independent families with repeats beyond the equivalent-count bound against the
+  literal reference running every copy.
+* Checks against outside sources (named beside each).
+"""
+
+from __future__ import annotations
+
+from decimal import Decimal
+from fractions import Fraction
+
+import numpy as np
+import pytest
+from hypothesis import HealthCheck, given, note, settings
+from hypothesis import strategies as st
+
+from marchkit.engine.fast import Engine
+from marchkit.engine.reference import reference_verdicts
+from marchkit.errors import FaultSpecError, ModelError
+from marchkit.faults import Instance, enumerate_instances, parse_pairs, select_faults
+from marchkit.faults.dram import (DDR3_FIRST_ERROR, LPDDR4_PER_AGGRESSOR, disturb_kinds,
+                                  parse_thresholds, retention_kinds)
+from marchkit.grade import grade
+from marchkit.model import make_memory, schedule
+from marchkit.model.dram import RefreshPlan, refresh_period_cycles
+from marchkit.notation import Delay, Element, MarchTest, Op, check_test, parse_notation
+from marchkit.notation.printer import format_notation
+
+SETTINGS = settings(max_examples=60, deadline=None, print_blob=True,
+                    suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large])
+
+
+# ---------------------------------------------------------------------------------------
+# refresh facts
+
+
+def _literal_max_gap(plan, row, ta, tb):
+    ev = [ta] + [s for s in plan.slots(row, ta + 1, tb)] + [tb]
+    return max(b - a for a, b in zip(ev, ev[1:]))
+
+
+def _literal_last(plan, row, t):
+    s = plan.slots(row, 0, t + 1)
+    return s[-1] if s else -1
+
+
+@SETTINGS
+@given(st.data())
+def test_refresh_closed_form_matches_listing(data):
+    rows = data.draw(st.integers(2, 6))
+    mux = data.draw(st.sampled_from((1, 2)))
+    scheme = data.draw(st.sampled_from(("distributed", "burst")))
+    period = data.draw(st.integers(rows * 2, rows * 2 + 40))
+    mem = make_memory(rows * mux, mux=mux, clock="1GHz", read_cycles=2, write_cycles=1,
+                      refresh=f"{period}ns", refresh_scheme=scheme,
+                      refresh_during_delays=data.draw(st.booleans()))
+    amount = data.draw(st.integers(0, 300))
+    test = MarchTest((Element("up", (Op("w", 0),)), Delay(Decimal(amount), "ns"),
+                      Element("up", (Op("r", 0),)), Delay(Decimal(data.draw(st.integers(0, 90))), "ns"),
+                      Element("down", (Op("r", 0),))))
+    plan = RefreshPlan(mem, schedule(test, mem))
+    assert plan.period == period
+    for _ in range(10):
+        row = data.draw(st.integers(0, mem.rows - 1))
+        ta = data.draw(st.integers(0, 600))
+        tb = ta + data.draw(st.integers(1, 400))
+        assert plan.max_gap(np.array([row]), np.array([ta]), np.array([tb]))[0] == _literal_max_gap(plan, row, ta, tb)
+        assert plan.last_refresh(np.array([row]), np.array([tb]))[0] == _literal_last(plan, row, tb)
+
+
+def test_distributed_refresh_visits_every_row_once_per_period():
+    # common practice, no source: distributed refresh spreads the rows evenly over the period
+    mem = make_memory(64, mux=4, clock="100MHz", refresh="64us")
+    plan = RefreshPlan(mem, schedule(parse_notation("{⇑(w0)}"), mem))
+    P = refresh_period_cycles(mem)
+    assert P == 6400
+    slots = sorted(s for r in range(mem.rows) for s in plan.slots(r, 0, P))
+    assert len(slots) == mem.rows == 16
+    assert np.diff(slots).tolist() == [P // 16] * 15
+
+
+def test_refresh_period_must_fit_the_rows():
+    with pytest.raises(ModelError, match="shorter than refreshing"):
+        make_memory(1024, clock="100MHz", refresh="1us")        # 100 cycles < 1024 rows
+    with pytest.raises(ModelError, match="page"):
+        make_memory(16, page="half")
+    with pytest.raises(ModelError, match="refresh scheme"):
+        make_memory(16, refresh="1ms", refresh_scheme="sometimes")
+
+
+# ---------------------------------------------------------------------------------------
+# random DRAM workloads: fast path against the literal oracle
+
+LONG = (1, 1, 1, 2, 3, 5, 40, 70, 257, 3000)
+
+
+@st.composite
+def dram_tests(draw, max_elements=5):
+    items, state = [], None
+    for _ in range(draw(st.integers(2, max_elements))):
+        order = draw(st.sampled_from(("up", "down", "any", "up")))
+        ops = []
+        for _ in range(draw(st.integers(1, 3))):
+            rep = draw(st.sampled_from(LONG))
+            if state is None or draw(st.integers(0, 2)) == 0:
+                v = draw(st.integers(0, 1))
+                ops.append(Op("w", v, rep))
+                state = v
+            else:
+                ops.append(Op("r", state, rep))
+        items.append(Element(order, tuple(ops)))
+        if draw(st.integers(0, 2)) == 0:
+            items.append(Delay(Decimal(draw(st.sampled_from((0, 1, 2, 5, 20, 100)))), "us"))
+    if state is not None:
+        items.append(Element("up", (Op("r", state),)))
+    t = MarchTest(tuple(items), name="random")
+    assert not [d for d in check_test(t) if d.severity == "error"]
+    if sum(e.order == "any" for e in t.elements) > 2:
+        t = MarchTest(tuple(Element("up", i.ops) if isinstance(i, Element) else i for i in t.items))
+    return t
+
+
+@st.composite
+def dram_memories(draw):
+    words = draw(st.sampled_from((2, 4, 6, 8)))
+    bits = draw(st.integers(1, 2))
+    mux = draw(st.sampled_from([d for d in (1, 2) if words % d == 0]))
+    rows = words // mux
+    rc = max(rw := draw(st.integers(1, 2)), wc := draw(st.integers(1, 2)))
+    clock = 10**7                                     # 100 ns per cycle
+    period_cycles = draw(st.one_of(st.just(0), st.integers(rows * rc, rows * rc + 60),
+                                   st.integers(200, 3000)))
+    kw = {}
+    if words & (words - 1) == 0 and draw(st.booleans()):
+        kw["scramble_xor"] = draw(st.integers(0, words - 1))
+    return make_memory(
+        words, bits, mux=mux, clock=clock, read_cycles=rw, write_cycles=wc,
+        order=draw(st.sampled_from(("linear", "gray", "complement", "random:3"))),
+        backgrounds=tuple(draw(st.lists(st.sampled_from(("solid", "checkerboard", "rows")), min_size=1,
+                                        max_size=2, unique=True))),
+        refresh=Fraction(period_cycles, clock), refresh_scheme=draw(st.sampled_from(("distributed", "burst"))),
+        refresh_during_delays=draw(st.booleans()), page=draw(st.sampled_from(("closed", "open"))), **kw,
+    )
+
+
+def _agree(test, mem, kinds):
+    sched = schedule(test, mem)
+    insts = [Instance(k, (c,)) for k in kinds for c in range(mem.cells)]
+    ref = reference_verdicts(test, mem, insts, sched)
+    fast = Engine(test, mem, sched).instance_verdicts(insts)
+    for inst, r, f in zip(insts, ref, fast):
+        assert r == f, (inst.kind.text, inst.sites, r, f)
+    # the per-kind counts are the counts of the per-instance verdicts
+    res = Engine(test, mem, sched).grade(type("S", (), {"kinds": tuple(kinds)})(), parse_pairs("neighbours"))
+    for k, rr in zip(kinds, res):
+        assert rr.detected == sum(r[0] for i, r in zip(insts, ref) if i.kind == k)
+    return ref
+
+
+@SETTINGS
+@given(st.data())
+def test_dram_families_agree_with_the_oracle(data):
+    test = data.draw(dram_tests(), label="test")
+    mem = data.draw(dram_memories(), label="memory")
+    note(format_notation(test) + f" refresh={mem.refresh} {mem.refresh_scheme} page={mem.page} "
+         f"during={mem.refresh_during_delays} mux={mem.mux} order={mem.order}")
+    sched = schedule(test, mem)
+    P = refresh_period_cycles(mem)
+    marks = sorted({3, 4, 7, 30, 100, 1000, 20_000, P - 1, P, P + 1, sched.cycles + 1} - {0, -1, 1, 2})
+    rc = max(mem.read_cycles, mem.write_cycles)
+    taus = [Fraction(c) / mem.clock_hz for c in data.draw(st.lists(st.sampled_from([m for m in marks if m > rc]),
+                                                                     min_size=1, max_size=2, unique=True))]
+    ns = data.draw(st.lists(st.sampled_from((1, 2, 3, 5, 39, 40, 41, 70, 256, 3000)), min_size=1, max_size=2, unique=True))
+    ref = _agree(test, mem, retention_kinds(taus) + disturb_kinds(ns))
+    note(f"detected {sum(r[0] for r in ref)} of {len(ref)}")
+
+
+@SETTINGS
+@given(st.data())
+def test_long_repeats_equal_the_literal_run_for_other_families(data):
+    """Repeats beyond the equivalent-count bound (32) against the reference running every copy."""
+    test = data.draw(dram_tests(max_elements=4), label="test")
+    mem = data.draw(dram_memories(), label="memory")
+    sel = select_faults("static,classic,dynamic")
+    kinds = data.draw(st.lists(st.sampled_from(sel.kinds), min_size=1, max_size=4, unique_by=lambda k: k.text))
+    scope = parse_pairs("neighbours")
+    insts = [i for k in kinds for i in enumerate_instances(k, mem, scope)][:200]
+    sched = schedule(test, mem)
+    ref = reference_verdicts(test, mem, insts, sched, limit=10**10)
+    fast = Engine(test, mem, sched).instance_verdicts(insts)
+    assert [r[0] for r in ref] == [f[0] for f in fast]
+    res = Engine(test, mem, sched).grade(type("S", (), {"kinds": tuple(kinds)})(), scope)
+    for k, rr in zip(kinds, res):
+        mine = [r[0] for i, r in zip(insts, ref) if i.kind == k]
+        if len(mine) == rr.instances:             # every instance of the kind was compared
+            assert rr.detected == sum(mine)
+
+
+# ---------------------------------------------------------------------------------------
+# checks against outside sources
+
+def _retention_result(test_text, mem, tau):
+    r = grade(parse_notation(test_text), mem, faults="retention", retention=[tau])
+    (row,) = r.classes
+    return row
+
+
+@pytest.mark.parametrize("text", [
+    "{⇕(w0); ⇑(r0,w1); Del(100ms); ⇓(r1,w0); Del(100ms); ⇕(r0)}",
+    "{⇑(w1); Del(300ms); ⇑(r1); ⇓(w0); Del(300ms); ⇓(r0)}",
+    "{⇑(w0); ⇑(r0^1000000,w1); ⇓(r1)}",
+])
+def test_refresh_running_protects_cells_longer_than_the_period(text):
+    # common practice, no source: with every row refreshed every P, a cell that keeps its
+    # charge longer than P never fails, whatever the test (refresh runs during the pauses)
+    mem = make_memory(4096, 1, mux=16, clock="100MHz", refresh="64ms", refresh_during_delays=True)
+    for tau in (Fraction(65, 1000), Fraction(128, 1000)):
+        row = _retention_result(text, mem, tau)
+        assert row.detected == 0, (text, tau)
+
+
+def test_suspended_refresh_and_a_long_enough_pause_catch_retention():
+    # common practice, no source: a retention test suspends refresh and pauses at least τ
+    mem = make_memory(4096, 1, mux=16, clock="100MHz", refresh="64ms")          # suspended in delays
+    text = "{⇕(w0); Del(100ms); ⇑(r0,w1); Del(100ms); ⇓(r1)}"
+    assert _retention_result(text, mem, Fraction(80, 1000)).coverage == 1.0    # pause ≥ τ > P
+    assert _retention_result(text, mem, Fraction(150, 1000)).detected == 0     # pause < τ
+    short = "{⇕(w0); Del(50ms); ⇑(r0,w1); Del(50ms); ⇓(r1)}"
+    assert _retention_result(short, mem, Fraction(80, 1000)).detected == 0
+    # the same pauses with refresh running: nothing (τ = 80 ms > P = 64 ms)
+    running = make_memory(4096, 1, mux=16, clock="100MHz", refresh="64ms", refresh_during_delays=True)
+    assert _retention_result(text, running, Fraction(80, 1000)).detected == 0
+
+
+# JEDEC DDR standards: every row refreshed within 64 ms at ≤ 85 °C, 32 ms above
+@pytest.mark.parametrize("window_ms", [64, 32])
+@pytest.mark.parametrize("threshold,source", [
+    (DDR3_FIRST_ERROR, "Kim et al., ISCA 2014: about 139 K activations to the first error (DDR3)"),
+    (LPDDR4_PER_AGGRESSOR, "Kim et al., ISCA 2020: as few as 4.8 K per aggressor row (LPDDR4)"),
+])
+def test_hammer_below_threshold_never_flips_at_threshold_does(threshold, source, window_ms):
+    # an invented 4 K x 8 macro, one word per row, 1 GHz; each row is activated N times in a
+    # row (closed page: every access activates), well inside one refresh window; its
+    # neighbours flip iff N ≥ threshold
+    mem = make_memory(4096, 8, mux=1, clock="1GHz", refresh=f"{window_ms}ms")
+    period = refresh_period_cycles(mem)
+    for n, flips in ((threshold - 1, False), (threshold, True), (2 * threshold, True)):
+        assert n * mem.read_cycles < period          # within one refresh window
+        t = parse_notation(f"{{⇑(w0); ⇑(r0^{n}); ⇑(r0)}}")
+        r = grade(t, mem, faults="disturb", thresholds=[threshold])
+        row = {c.cls: c for c in r.classes}["disturb"]
+        kinds = {k.kind.text: k for k in r.kinds}
+        assert (kinds[f"disturb0(N={threshold})"].detected > 0) == flips, (source, n)
+        assert kinds[f"disturb1(N={threshold})"].detected == 0      # the cells hold 0
+        assert row.instances == 2 * mem.cells
+
+
+def test_open_page_single_row_repeats_do_not_hammer():
+    # common practice, no source: with the row left open, repeated accesses to it are one
+    # activation; the hammer needs two rows in turn (here: two elements cannot do it)
+    mem = make_memory(1024, 1, mux=32, clock="1GHz", refresh="64ms", page="open")
+    r = grade(parse_notation("{⇑(w0); ⇑(r0^10000); ⇑(r0)}"), mem, faults="disturb", thresholds=[5000])
+    assert r.total.detected == 0
+
+
+def test_refresh_inside_a_long_hammer_resets_the_count():
+    # the victim row is refreshed every P: N activations spread over more than a window flip
+    # nothing when fewer than N fall between two refreshes of the victim row
+    mem = make_memory(64, 1, mux=8, clock="1GHz", refresh="1us")       # P = 1000 cycles, 8 rows
+    hit = grade(parse_notation("{⇑(w0); ⇑(r0^600); ⇑(r0)}"), mem, faults="disturb", thresholds=[1500])
+    assert hit.total.detected == 0                 # at most ~1000 activations per window
+    hit = grade(parse_notation("{⇑(w0); ⇑(r0^600); ⇑(r0)}"), mem, faults="disturb", thresholds=[900])
+    assert hit.total.detected > 0
+
+
+def test_thresholds_parse_and_refuse():
+    assert parse_thresholds("139000,4.8k") == (139_000, 4_800)
+    for bad in ("0", "-5", "1.5", "abc", ""):
+        with pytest.raises(FaultSpecError):
+            parse_thresholds(bad)
+
+
+def test_retention_time_must_exceed_a_row_cycle():
+    mem = make_memory(16, clock="100MHz", refresh="1ms", read_cycles=2)
+    with pytest.raises(FaultSpecError, match="row cycle"):
+        grade(parse_notation("{⇑(w0); ⇑(r0)}"), mem, faults="retention", retention=[Fraction(2, 10**8)])
+
+
+# ---------------------------------------------------------------------------------------
+# spread of retention times, CLI
+
+
+def test_lognormal_spread_points_are_equal_probability_quantiles():
+    from statistics import NormalDist
+
+    from marchkit.grade.spread import expected_caught, parse_spread, per_tau
+
+    sp = parse_spread("lognormal:100ms:0.5:9")
+    assert len(sp.taus) == 9
+    assert sp.taus[4] == Fraction(1, 10)                    # the middle point is the median
+    # log-normal: ln τ is normal (common practice, no source); points at (i + ½)/K quantiles
+    for i, t in enumerate(sp.taus):
+        z = NormalDist().inv_cdf((i + 0.5) / 9)
+        assert abs(float(t) - 0.1 * np.exp(0.5 * z)) / float(t) < 5e-3
+    mem = make_memory(256, 1, mux=16, clock="100MHz", refresh="64ms")
+    r = grade(parse_notation("{⇕(w0); Del(100ms); ⇑(r0,w1); Del(100ms); ⇓(r1)}"), mem,
+              faults="retention", retention=sp.taus)
+    rows = per_tau(r.kinds)
+    # a 100 ms pause with refresh suspended catches every τ ≤ 100 ms and none above: 5 of 9
+    assert [row.coverage for row in rows] == [1.0] * 5 + [0.0] * 4
+    assert expected_caught(rows, sp.taus) == pytest.approx(5 / 9)
+
+
+def test_cli_dram_grade_and_bad_input(cli):
+    code, out, err = cli("grade", "{⇕(w0); Del(100ms); ⇑(r0,w1); Del(100ms); ⇓(r1)}", "--words", "256",
+                         "--mux", "16", "--refresh", "64ms", "--faults", "retention",
+                         "--retention-spread", "lognormal:100ms:0.5:9")
+    assert code == 0, err
+    assert "weak cells caught (expected, retention spread lognormal:100ms:0.5:9, 9 points): 55.56%" in out
+    assert "refresh 64ms distributed" in out and "suspended during delays" in out
+    code, out, err = cli("grade", "{⇑(w0); ⇑(r0^5000); ⇑(r0)}", "--words", "64", "--refresh", "1ms",
+                         "--clock", "1GHz", "--faults", "disturb", "--disturb-threshold", "4.8k")
+    assert code == 0, err
+    assert "disturb" in out
+    for args, msg in (
+        (("--refresh", "10ns"), "shorter than refreshing"),               # period < rows × row cycle
+        (("--faults", "disturb", "--disturb-threshold", "0"), "at least 1 activation"),
+        (("--faults", "disturb", "--disturb-threshold", "-3"), "at least 1 activation"),
+        (("--retention-spread", "lognormal:1ms"), "lognormal:MEDIAN:SIGMA"),
+    ):
+        code, out, err = cli("grade", "{⇑(w0); ⇑(r0)}", "--words", "64", *args)
+        assert code == 2, (args, out, err)
+        assert msg in err and "Traceback" not in err
+    code, out, err = cli("grade", "{⇑(w0); ⇑(r0^1000000001)}", "--words", "64")
+    assert code == 2 and "out of range" in err
+
+
+# ---------------------------------------------------------------------------------------
+# export of hammer-length repeats
+
+def _stil_loops(path):
+    """(repeat, V text) pairs read back by the independent parser semi-ate-stil."""
+    mod = pytest.importorskip("Semi_ATE.STIL.parsers.STILParser")
+    p = mod.STILParser(str(path))
+    tree = p.parse_syntax()
+    assert tree is not None, p.err_msg
+    p.parse_semantic()
+    assert p.is_parsing_done, p.err_msg
+    out = []
+
+    def walk(node, repeat):
+        for st in node.children:
+            if not hasattr(st, "data"):
+                continue
+            name = str(st.data)
+            if name.endswith("__v_stmt"):
+                blocks = list(st.find_pred(lambda t: str(t.data).endswith("__vec_data_block")))
+                out.append((repeat, tuple((str(b.children[0]), str(b.children[1])) for b in blocks)))
+            elif name.endswith("__l_stmt"):
+                count = int(next(tok for tok in st.children if str(getattr(tok, "type", "")).endswith("LOOP_COUNT")))
+                walk(st, repeat * count)
+            elif name.endswith("pattern_statement") or name == "pattern_block":
+                walk(st, repeat)
+
+    for pb in tree.find_data("pattern_block"):
+        walk(pb, 1)
+    return out
+
+
+@pytest.mark.parametrize("read_cycles", [1, 2])
+def test_stil_loops_hammer_repeats_and_reads_back(tmp_path, read_cycles):
+    from marchkit.export import Plan, export
+
+    mem = make_memory(8, 2, read_cycles=read_cycles)
+    long_t = parse_notation("{⇑(w0); ⇑(r0^70000,w1); ⇓(r1)}")
+    short_t = parse_notation("{⇑(w0); ⇑(r0^3,w1); ⇓(r1)}")
+    a, b = tmp_path / "long.stil", tmp_path / "short.stil"
+    export(long_t, mem, str(a))
+    export(short_t, mem, str(b))
+    got_long, got_short = _stil_loops(a), _stil_loops(b)
+    assert sum(n for n, _ in got_long) == Plan(long_t, mem).cycles == 8 + 8 * (70000 * read_cycles + 1) + 8 * read_cycles
+    # the same vectors, the loop of 70000 copies standing where 3 copies are spelled out
+    flat_long, body = [], []
+    for n, v in got_long + [(1, None)]:
+        if n == 70000:                  # the vectors of one loop body, in order
+            body.append(v)
+            continue
+        flat_long += body * 3
+        body = []
+        if v is not None:
+            flat_long += [v] * n
+    flat_short = [v for n, v in got_short for _ in range(n)]
+    assert flat_long == flat_short
+    assert a.stat().st_size < 10_000
+
+
+def test_cycle_by_cycle_formats_refuse_hammer_repeats(tmp_path, cli):
+    for fmt in ("csv", "jsonl", "vcd", "hex"):
+        out = tmp_path / f"p.{fmt}"
+        code, _, err = cli("export", "{⇑(w0); ⇑(r0^1000000,w1); ⇓(r1)}", "--words", "8", "--format", fmt, "-o", str(out))
+        assert code == 2 and "export it as stil" in err, (fmt, err)
+        assert not out.exists()                                       # nothing half-written
+    code, out, err = cli("export", "{⇑(w0); ⇑(r0^1000000000,w1); ⇓(r1)}", "--words", "1024", "--format", "stil",
+                         "-o", str(tmp_path / "h.stil"))
+    assert code == 0, err
+    assert (tmp_path / "h.stil").stat().st_size < 1_000_000            # grows with words, not repeats
+
+
+def test_the_shipped_dram_example_and_demo(cli):
+    from pathlib import Path
+
+    root = Path(__file__).resolve().parents[1]
+    mem = str(root / "examples" / "corvid_dram.toml")
+    code, out, err = cli("check", str(root / "examples" / "dram.march"), "--strict")
+    assert code == 0, err
+    code, out, err = cli("check", mem)
+    assert code == 0 and "refresh 64ms distributed" in out, err
+    code, out, err = cli("grade", f"{root / 'examples' / 'dram.march'}:Corvid retention", "--memory", mem,
+                         "--faults", "retention", "--retention", "50ms,100ms,200ms")
+    assert code == 0, err
+    # 100 ms pauses with refresh suspended: τ = 50 ms and 100 ms caught, 200 ms not
+    assert "66.67%" in out
+    code, out, err = cli("demo")
+    assert code == 0 and "corvid_edram" in out and "disturb" in out, err
