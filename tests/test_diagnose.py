@@ -240,6 +240,8 @@ def test_projected_trace_equals_the_whole_array():
         tr = Tracer(test, mem)
         full = tr.full_words()
         for kind in all_kinds():
+            if kind.arity > 2:        # not diagnosed (yet): linked faults of three cells, NPSF
+                continue
             inst, _ = _random_instance(kind, mem, rng)
             for inits, dirs in tr.scenarios(inst, canonical=False):
                 assert tr.compares(inst, inits, dirs) == tr.compares(inst, inits, dirs, words=full), inst.text(mem)
@@ -398,7 +400,7 @@ def test_json_contract_and_terminal_view(tmp_path, cli, monkeypatch):
     inst = Instance(CFID[1], (4 * 20 + 1, 4 * 21 + 1))    # <0w1;0/1/->: aggressor w20.b1, victim w21.b1
     p = _log_for(tmp_path, test, mem, inst, (0, 0))
     code, text, err = cli("diagnose", "March C-", "--words", "64", "--bits", "4", "--mux", "2",
-                          "--fails", str(p), "--json", "--top", "5")
+                          "--fails", str(p), "--json", "--top", "5", "--faults", "static,classic")
     assert code == 0, err
     res = json.loads(text)
     assert set(res) >= {"candidates", "bitmap", "resolution", "hint"}
@@ -411,7 +413,7 @@ def test_json_contract_and_terminal_view(tmp_path, cli, monkeypatch):
                for c in res["candidates"] if c["rank"] == 1 for m in c["members"])
     assert res["bitmap"]["class"] == "single cell"
     code, out, err = cli("diagnose", "March C-", "--words", "64", "--bits", "4", "--mux", "2", "--fails", str(p),
-                         "--members", "100")
+                         "--members", "100", "--faults", "static,classic")
     assert code == 0
     assert "single cell" in out and "match the log exactly" in out and "CFid<↑;1> a=w20.b1 v=w21.b1" in out
 
@@ -431,7 +433,7 @@ def test_hint_splits_a_class_with_an_extra_element():
     tr = Tracer(test, mem)
     lines = [c for c in tr.compares(inst, (0,)) if c.definite]
     log = parse_fail_log(fail_log_csv(lines, mem), "x", 16, 1, CompareTable(test, mem))
-    d = diagnose(test, mem, log)
+    d = diagnose(test, mem, log, "static,classic")
     target = max(d.consistent, key=lambda c: c.size)
     assert ("<0w1/0/->", (6,)) in _members(target) and ("SA0", (6,)) in _members(target)
     assert d.hint["element"] and len(d.hint["split"]) >= 2

@@ -5,6 +5,11 @@ from __future__ import annotations
 import json
 
 
+# One defect at a time: linked faults (two faults at once) and faults of three or more cells
+# are left out unless asked for.
+SINGLE_FAULTS = "static,classic,dynamic,retention"
+
+
 def register(sub):
     from .common import add_memory_options
 
@@ -20,8 +25,9 @@ def register(sub):
     add_memory_options(p)
     g = p.add_argument_group("diagnosis")
     g.add_argument("--fails", required=True, metavar="FILE", help="the fail log (CSV or JSON lines)")
-    g.add_argument("--faults", default="all", metavar="LIST",
-                   help="fault kinds to consider (as for grade; default all)")
+    g.add_argument("--faults", default=SINGLE_FAULTS, metavar="LIST",
+                   help="fault kinds to consider (as for grade; default: every single fault, "
+                        f"{SINGLE_FAULTS})")
     g.add_argument("--pairs", default="neighbours", metavar="SCOPE",
                    help="aggressors and decoder partners: all, neighbours, word, sample:K[:SEED] (default neighbours)")
     g.add_argument("--retention", default="1ms", metavar="TIMES", help="DRF leakage times τ, comma list (default 1ms)")

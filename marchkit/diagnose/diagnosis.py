@@ -260,10 +260,9 @@ def candidate_groups(tr, kinds, scope, cells, words, notes):
     pair = [k for k in kinds if not _on_words(k) and k.arity == 2]
     af1 = [k for k in kinds if _on_words(k) and k.arity == 1]
     af2 = [k for k in kinds if _on_words(k) and k.arity == 2]
-    more = sorted({k.text for k in kinds if k.arity > 2})
+    more = sorted({k.cls for k in kinds if k.arity > 2})
     if more:
-        notes.append(f"kinds with more than two sites are not diagnosed yet: {', '.join(more[:5])}"
-                     + (" …" if len(more) > 5 else ""))
+        notes.append(f"faults of three or more cells are not diagnosed yet (classes {', '.join(more)})")
     for v in cells:
         for k in single:
             groups.append(Group(k, np.array([[v]], dtype=np.int64)))
@@ -336,7 +335,7 @@ def _af_partner_fails(g: Group, partner_col: int) -> bool:
     return any(c.address == p for _, comps in g.syndromes for c in comps)
 
 
-def diagnose(test, mem, log, faults: str = "all", pairs: str = "neighbours", retention=None,
+def diagnose(test, mem, log, faults: str = "static,classic,dynamic,retention", pairs: str = "neighbours", retention=None,
              hint: bool = True, progress=None) -> Diagnosis:
     """Rank the fault candidates for ``log`` (a :class:`~.faillog.FailLog` checked against
     ``test`` on ``mem``)."""
