@@ -54,20 +54,13 @@ def collect_tests(specs, with_library: bool):
 
 
 def _check_output(path, force: bool, plot: bool = False) -> None:
-    from pathlib import Path
-
-    from ..errors import OutputError
+    from ..files import target_kind
 
     if plot:
         from ..report.style import plot_format
 
         plot_format(path)
-    p = Path(path)
-    if p.exists() and not force:
-        raise OutputError(f"{p} exists; use --force to replace it")
-    d = p.parent if str(p.parent) else Path(".")
-    if not d.is_dir():
-        raise OutputError(f"cannot write {p}: no directory {d}")
+    target_kind(path, force)
 
 
 def run(args) -> int:
@@ -85,7 +78,7 @@ def run(args) -> int:
     selection = select_faults(args.faults, retention)
     sort = check_sort_key(args.sort, selection.classes)
     for path, is_plot in ((args.csv, False), (args.plot, True)):
-        if path:
+        if path is not None:
             _check_output(path, args.force, plot=is_plot)
 
     show_progress = sys.stderr.isatty() and not args.json
@@ -109,10 +102,10 @@ def run(args) -> int:
         cmp = compare_tests(tests, mem, args.faults, args.pairs, retention, args.engine, sort=sort)
 
     written = []
-    if args.csv:
+    if args.csv is not None:
         atomic_write(args.csv, cmp.to_csv(), force=args.force)
         written.append(args.csv)
-    if args.plot:
+    if args.plot is not None:
         from ..report import write_comparison_plot
 
         write_comparison_plot(cmp, args.plot, force=args.force)

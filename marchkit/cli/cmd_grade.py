@@ -84,8 +84,16 @@ def run(args) -> int:
     from ..notation import format_notation
     from .common import console, load_test, memory_from_args, retention_from_args
 
+    if args.missed < 0:
+        from ..errors import InputError
+
+        raise InputError("--missed takes a number of instances, 0 or more")
     test = load_test(args.test)
     mem = memory_from_args(args)
+    if args.report is not None:
+        from ..files import target_kind
+
+        target_kind(args.report, args.force)
     prog, cb = make_progress(sys.stderr.isatty() and not args.json)
     if prog:
         with prog:
@@ -94,19 +102,15 @@ def run(args) -> int:
     else:
         res = grade(test, mem, args.faults, args.pairs, retention_from_args(args), args.engine,
                     examples=args.missed)
-    if args.report:
+    if args.report is not None:
         from ..report import write_html_report
 
         write_html_report(res, args.report, force=args.force)
-    if args.missed < 0:
-        from ..errors import InputError
-
-        raise InputError("--missed takes a number of instances, 0 or more")
     if args.json:
         print(json.dumps(res.to_json(), indent=2, ensure_ascii=False))
         return 0
     show_result(res, console(), primitives=args.primitives)
-    if args.report:
+    if args.report is not None:
         console().print(f"report written to {args.report}")
     return 0
 

@@ -15,11 +15,29 @@ DEFAULT_WORDS = 64
 
 
 def console(stderr: bool = False):
+    """A rich console.  Width: the terminal's, else $COLUMNS, else 132 columns (files, pipes).
+    A closed pipe is reported to the command-line guard (quiet exit 0), not as rich's exit 1."""
     from rich.console import Console
 
+    class _Console(Console):
+        def on_broken_pipe(self) -> None:
+            raise BrokenPipeError
+
     stream = sys.stderr if stderr else sys.stdout
-    width = None if stream.isatty() else 132
-    return Console(stderr=stderr, highlight=False, soft_wrap=False, width=width)
+    width = None
+    cols = os.environ.get("COLUMNS", "")
+    if cols.isdigit() and 20 <= int(cols) <= 1000:
+        width = int(cols)
+    elif not _isatty(stream):
+        width = 132
+    return _Console(file=stream, highlight=False, soft_wrap=False, width=width)
+
+
+def _isatty(stream) -> bool:
+    try:
+        return stream.isatty()
+    except (ValueError, AttributeError):
+        return False
 
 
 def add_memory_options(p) -> None:

@@ -113,6 +113,9 @@ def export(test, mem, out: str, fmt: str | None = None, *, physical: bool = Fals
     """
     from .output import Targets
 
+    from ..files import target_kind
+
+    target_kind(out, force)          # empty names, directories, "newdir/", ... before any work
     fmt = format_for(out, fmt)
     if stuck is not None and fmt != "hex":
         raise OutputError("a stuck-at cell can only be injected with --format hex (into its SRAM model)")
@@ -126,6 +129,20 @@ def export(test, mem, out: str, fmt: str | None = None, *, physical: bool = Fals
     if fmt == "hex" and not streamed:
         tb_path, sram_path = companion_paths(out)
         paths += [str(tb_path), str(sram_path)]
+    try:
+        return _export(plan, out, fmt, paths, tb_path, sram_path, mem, physical, force, stuck)
+    except OSError as e:
+        if isinstance(e, BrokenPipeError) and out == "-":
+            raise
+        from ..files import os_error_text
+
+        where = "standard output" if out == "-" else out
+        raise OutputError(f"cannot write {where}: {os_error_text(e)}") from None
+
+
+def _export(plan, out, fmt, paths, tb_path, sram_path, mem, physical, force, stuck) -> ExportResult:
+    from .output import Targets
+
     with Targets(paths, force=force) as targets:
         f = _Counting(targets.open(out))
         details = writer(fmt)(plan, f) or {}
