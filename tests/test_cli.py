@@ -86,7 +86,7 @@ def test_unknown_test_name(cli):
 
 @pytest.mark.parametrize("argv,needle", [
     (["--words", "10", "--mux", "4"], "does not divide"),
-    (["--words", "1"], "at least 2 words"),
+    (["--words", "1"], "argument --words: 1 is outside 2 to 67,108,864"),
     (["--order", "sideways"], "unknown address order"),
     (["--backgrounds", "plaid"], "unknown background"),
     (["--clock", "fast"], "not a frequency"),

@@ -67,14 +67,15 @@ def run(args) -> int:
     from ..errors import InputError
     from ..faults import select_faults
     from ..report import check_sort_key, compare_tests
-    from .common import atomic_write, console, memory_from_args, retention_from_args
+    from .common import atomic_write, check_sizes, console, memory_from_args, retention_from_args
 
     if not args.tests and not args.library:
         raise InputError("give the tests to compare (library names, files or notations), or --library")
-    retention = retention_from_args(args)
     # everything that can be wrong with the command is found before any grading
     tests = collect_tests(args.tests, args.library)
     mem = memory_from_args(args)
+    retention = retention_from_args(args)
+    check_sizes(mem, args.faults, args.pairs, retention)
     selection = select_faults(args.faults, retention)
     sort = check_sort_key(args.sort, selection.classes)
     for path, is_plot in ((args.csv, False), (args.plot, True)):

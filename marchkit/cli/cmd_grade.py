@@ -82,7 +82,7 @@ def make_progress(enabled: bool):
 def run(args) -> int:
     from ..grade import grade
     from ..notation import format_notation
-    from .common import console, load_test, memory_from_args, retention_from_args
+    from .common import check_sizes, console, load_test, memory_from_args, retention_from_args
 
     if args.missed < 0:
         from ..errors import InputError
@@ -94,13 +94,15 @@ def run(args) -> int:
         from ..files import target_kind
 
         target_kind(args.report, args.force)
+    retention = retention_from_args(args)
+    check_sizes(mem, args.faults, args.pairs, retention)
     prog, cb = make_progress(sys.stderr.isatty() and not args.json)
     if prog:
         with prog:
-            res = grade(test, mem, args.faults, args.pairs, retention_from_args(args), args.engine, cb,
+            res = grade(test, mem, args.faults, args.pairs, retention, args.engine, cb,
                         examples=args.missed)
     else:
-        res = grade(test, mem, args.faults, args.pairs, retention_from_args(args), args.engine,
+        res = grade(test, mem, args.faults, args.pairs, retention, args.engine,
                     examples=args.missed)
     if args.report is not None:
         from ..report import write_html_report

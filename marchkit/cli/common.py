@@ -40,24 +40,50 @@ def _isatty(stream) -> bool:
         return False
 
 
+def bounded_int(lo: int, hi: int):
+    """An argparse type: a whole number from ``lo`` to ``hi`` (refused before any work, with
+    the range in the message)."""
+    import argparse
+
+    def conv(text: str) -> int:
+        t = text.strip().replace("_", "")
+        try:
+            if len(t) > 24:
+                raise ValueError
+            v = int(t, 0)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"{text[:30]!r} is not a whole number ({lo} to {hi:,})") from None
+        if not lo <= v <= hi:
+            raise argparse.ArgumentTypeError(f"{v:,} is outside {lo} to {hi:,}")
+        return v
+
+    conv.__name__ = "whole number"
+    return conv
+
+
 def add_memory_options(p) -> None:
     g = p.add_argument_group("memory (a TOML file with --memory, and/or these; flags win)")
     g.add_argument("--memory", metavar="FILE", help="memory description (TOML); 'demo' for the built-in demo memory")
-    g.add_argument("--words", type=int, metavar="N", help=f"number of words (default {DEFAULT_WORDS})")
-    g.add_argument("--bits", type=int, metavar="B", help="bits per word (default 1)")
-    g.add_argument("--mux", type=int, metavar="M", help="column mux: words per physical row (default 1)")
+    g.add_argument("--words", type=bounded_int(2, 1 << 26), metavar="N", help=f"number of words, 2 to 2^26 (default {DEFAULT_WORDS})")
+    g.add_argument("--bits", type=bounded_int(1, 1024), metavar="B", help="bits per word, 1 to 1024 (default 1)")
+    g.add_argument("--mux", type=bounded_int(1, 1 << 26), metavar="M", help="column mux: words per physical row (default 1)")
     g.add_argument("--order", metavar="ORDER", help="address order: linear, gray, complement, stride:I, random:SEED")
     g.add_argument("--backgrounds", metavar="LIST", help="data backgrounds: solid, checkerboard, rows, columns, word, 0xHEX (comma list; one run each)")
-    g.add_argument("--clock", metavar="FREQ", help="clock, e.g. 200MHz (default 100MHz)")
-    g.add_argument("--read-cycles", type=int, metavar="C", help="clock cycles per read (default 1)")
-    g.add_argument("--write-cycles", type=int, metavar="C", help="clock cycles per write (default 1)")
+    g.add_argument("--clock", metavar="FREQ", help="clock with its unit (Hz, kHz, MHz, GHz), e.g. 200MHz; 1Hz to 100GHz (default 100MHz)")
+    g.add_argument("--read-cycles", type=bounded_int(1, 1024), metavar="C", help="clock cycles per read, 1 to 1024 (default 1)")
+    g.add_argument("--write-cycles", type=bounded_int(1, 1024), metavar="C", help="clock cycles per write, 1 to 1024 (default 1)")
     g.add_argument("--scramble-bits", metavar="LIST", help="address scrambling: physical bit i takes logical bit LIST[i]")
     g.add_argument("--scramble-xor", metavar="MASK", help="address scrambling: XOR mask applied after the bit order")
     g.add_argument("--neighbours", type=int, choices=(4, 8), help="physical neighbours: 4 (N/S/E/W) or 8 (with diagonals; default)")
 
 
 def memory_from_args(args):
-    from ..model import load_memory_file, make_memory
+    """The memory the options describe; the memory file's other settings (retention times,
+    class weights) are kept on ``args.memory_file`` for the commands that use them."""
+    from ..model import make_memory, parse_frequency, read_memory_file
+
+    if args.clock is not None:
+        parse_frequency(args.clock, require_unit=True)
 
     flags = dict(
         words=args.words, bits=args.bits, mux=args.mux, order=args.order,
@@ -70,7 +96,9 @@ def memory_from_args(args):
         base.update({k: v for k, v in flags.items() if v is not None})
         return make_memory(**base)
     if args.memory:
-        return load_memory_file(args.memory, **flags)
+        mf = read_memory_file(args.memory, **flags)
+        args.memory_file = mf
+        return mf.memory
     kw = {k: v for k, v in flags.items() if v is not None}
     kw.setdefault("words", DEFAULT_WORDS)
     return make_memory(**kw)
@@ -82,16 +110,59 @@ def add_fault_options(p) -> None:
                    help="fault selection: static, classic, retention, all, class names (SAF, CFds, DRF, ...), kinds (SA0, AF:alias) or primitives like '<0w1/0/->' (comma list; default static)")
     g.add_argument("--pairs", default="neighbours", metavar="SCOPE",
                    help="cell pairs for two-cell faults: all, neighbours, word, sample:K[:SEED] (comma list = union; default neighbours)")
-    g.add_argument("--retention", default="1ms", metavar="TIMES",
-                   help="DRF leakage times τ, comma list (default 1ms)")
+    g.add_argument("--retention", default=None, metavar="TIMES",
+                   help="DRF leakage times τ with units, comma list, each 1ns to 10000s (default: the memory "
+                   "file's retention list, else 1ms)")
     g.add_argument("--engine", choices=("fast", "reference"), default="fast",
                    help="fast (default) or the literal reference simulator (audits; small memories only)")
 
 
-def retention_from_args(args):
+def retention_from_args(args, mem=None):
+    """The leakage times: --retention, else the memory file's ``retention``, else 1 ms."""
+    from ..errors import InputError
     from ..model import parse_duration
 
-    return tuple(parse_duration(t) for t in args.retention.split(",") if t.strip())
+    text = args.retention
+    if text is None:
+        mf = getattr(args, "memory_file", None)
+        file_times = mf.retention if mf is not None else None
+        if file_times:
+            return tuple(file_times)
+        text = "1ms"
+    parts = [t.strip() for t in text.split(",")]
+    if not any(parts) or len(parts) > 64:
+        raise InputError(f"--retention {text[:40]!r}: give 1 to 64 leakage times with units, e.g. 5ms,50ms")
+    if "" in parts:
+        raise InputError(f"--retention {text[:40]!r}: an empty item in the list")
+    return tuple(parse_duration(t) for t in parts)
+
+
+def check_sizes(mem, faults_spec: str, pairs_spec: str, retention) -> None:
+    """Refuse, before any work, pair scopes that cannot be held in memory (limits stated)."""
+    from ..errors import EngineLimitError
+    from ..faults import parse_pairs, select_faults
+    from ..faults.catalogue import MAX_EXPLICIT_PAIRS
+
+    sel = select_faults(faults_spec, retention)
+    scope = parse_pairs(pairs_spec)
+    cell_kinds = any(k.arity >= 2 and k.family != "af" for k in sel.kinds)
+    word_kinds = any(k.arity >= 2 and k.family == "af" for k in sel.kinds)
+    if not (cell_kinds or word_kinds) or scope.is_all:
+        return
+    total = 0
+    for part in scope.parts:
+        if part[0] == "sample":
+            n = mem.words if not cell_kinds else mem.cells
+            total += min(part[1], n * (n - 1))
+        elif part[0] == "word" and cell_kinds:
+            total += mem.words * mem.bits * (mem.bits - 1)
+        elif part[0] == "neighbours":
+            total += mem.cells * mem.neighbours
+    if total > MAX_EXPLICIT_PAIRS:
+        raise EngineLimitError(
+            f"--pairs {pairs_spec}: about {total:,} cell pairs on {mem.words:,} × {mem.bits} cells, more "
+            f"than marchkit lists at once ({MAX_EXPLICIT_PAIRS:,}); use --pairs all (counted, not listed), "
+            "a smaller sample or a smaller memory")
 
 
 def load_test(spec: str, check: bool = True):
