@@ -6,6 +6,7 @@ from __future__ import annotations
 
 import time
 from fractions import Fraction
+from pathlib import Path
 
 import pytest
 
@@ -142,3 +143,41 @@ def test_bounded_parsers_directly():
     for bad in (float("nan"), float("inf"), "1e99999999999", "x" * 100):
         with pytest.raises(ModelError):
             parse_frequency(bad)
+
+
+# ---- output size budget ----------------------------------------------------------------
+
+def test_export_size_refused_before_writing(cli, tmp_path):
+    out = tmp_path / "big.csv"
+    t = time.perf_counter()
+    code, o, err = cli("export", "{⇕(w0); ⇑(r0,w1); Del(9000s); ⇓(r1,w0)}", "--words", "1024", "--bits", "1024",
+                       "-o", str(out))
+    assert time.perf_counter() - t < 5
+    assert code == 2
+    assert err.strip() == ("error: the export would write about 721 TB of csv (900,000,005,120 cycles, 100 % of "
+                           "them idle), more than the 1 GB limit; use --force-size to write it anyway; STIL writes "
+                           "idle runs as loops (--format stil: about 12.9 MB)")
+    assert list(tmp_path.iterdir()) == []
+
+
+@pytest.mark.parametrize("fmt", ["csv", "jsonl", "vcd", "stil", "hex"])
+@pytest.mark.parametrize("spec,words,bits", [
+    ("March C-", 64, 8), ("March C-", 1024, 32), ("{⇕(w0); ⇑(r0,w1); Del(100us); ⇓(r1,w0)}", 256, 1),
+    ("March SS", 16, 128),
+])
+def test_size_estimate_close_to_real_size(tmp_path, fmt, spec, words, bits):
+    # the independent figure is the number of bytes the writer actually put on disk
+    from marchkit.export import export
+    from marchkit.model import make_memory
+    from marchkit.notation import resolve_test
+
+    out = tmp_path / f"x.{fmt}"
+    r = export(resolve_test(spec), make_memory(words, bits), str(out), fmt)
+    real = sum((tmp_path / Path(f).name).stat().st_size for f in r.files)
+    assert 0.7 <= r.details["estimated_bytes"] / real <= 1.5 if fmt != "hex" else 0.7 <= r.details["estimated_bytes"] / real <= 3.5
+
+
+def test_force_size_lifts_the_limit(cli, tmp_path):
+    code, o, err = cli("export", "{⇕(w0); Del(20s); ⇑(r0)}", "--words", "2", "-o", "/dev/null", "-f", "csv",
+                       "--force-size", "-q", "--clock", "1kHz")
+    assert code == 0, err

@@ -33,6 +33,9 @@ def register(sub):
     g.add_argument("-o", "--output", required=True, metavar="FILE",
                    help="output file ('-' for standard output; hex then writes no testbench, nor to a device or pipe)")
     g.add_argument("--force", action="store_true", help="replace existing files")
+    g.add_argument("--force-size", action="store_true",
+                   help="write even when the size estimated before writing exceeds 1 GB (the estimate is "
+                   "printed either way; long delays make csv, jsonl and vcd huge, stil writes them as loops)")
     g.add_argument("--physical", action="store_true",
                    help="physical (scrambled) word addresses instead of logical ones")
     g.add_argument("--stuck-at", metavar="WORD:BIT:VALUE",
@@ -78,7 +81,7 @@ def run(args) -> int:
     stuck = parse_stuck(args.stuck_at)
     _stop_on_term()
     res = export(test, mem, args.output, args.format, physical=args.physical, force=args.force,
-                 stuck=stuck)
+                 stuck=stuck, max_bytes=0 if args.force_size else None)
     if not args.quiet:
         out = sys.stderr if args.output == "-" else sys.stdout
         where = "standard output" if args.output == "-" else ", ".join(res.files)

@@ -105,11 +105,15 @@ def check_stuck(mem, stuck) -> None:
 
 
 def export(test, mem, out: str, fmt: str | None = None, *, physical: bool = False,
-           force: bool = False, stuck=None) -> ExportResult:
+           force: bool = False, stuck=None, max_bytes: int | None = None) -> ExportResult:
     """Write ``test`` on ``mem`` to ``out`` (a path or ``-``) in ``fmt``.
 
     ``stuck`` (hex only): ``(logical word, bit, value)`` of a stuck-at cell that the
     generated testbench injects into its SRAM model by default.
+
+    ``max_bytes``: refuse, before writing, an export estimated larger than this (default
+    :data:`.budget.DEFAULT_LIMIT`, 1 GB; ``0`` for no limit).  The estimate is in
+    ``details["estimated_bytes"]``.
     """
     from .output import Targets
 
@@ -121,6 +125,9 @@ def export(test, mem, out: str, fmt: str | None = None, *, physical: bool = Fals
         raise OutputError("a stuck-at cell can only be injected with --format hex (into its SRAM model)")
     check_stuck(mem, stuck)
     plan = Plan(test, mem, physical=physical)
+    from .budget import DEFAULT_LIMIT, check_budget
+
+    estimate = check_budget(plan, fmt, out, DEFAULT_LIMIT if max_bytes is None else (max_bytes or None))
     paths = [out]
     tb_path = sram_path = None
     streamed = out == "-" or (Path(out).exists() and not Path(out).is_file() and not Path(out).is_dir())
@@ -130,7 +137,9 @@ def export(test, mem, out: str, fmt: str | None = None, *, physical: bool = Fals
         tb_path, sram_path = companion_paths(out)
         paths += [str(tb_path), str(sram_path)]
     try:
-        return _export(plan, out, fmt, paths, tb_path, sram_path, mem, physical, force, stuck)
+        res = _export(plan, out, fmt, paths, tb_path, sram_path, mem, physical, force, stuck)
+        res.details.setdefault("estimated_bytes", estimate)
+        return res
     except OSError as e:
         if isinstance(e, BrokenPipeError) and out == "-":
             raise
