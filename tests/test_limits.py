@@ -181,3 +181,41 @@ def test_force_size_lifts_the_limit(cli, tmp_path):
     code, o, err = cli("export", "{⇕(w0); Del(20s); ⇑(r0)}", "--words", "2", "-o", "/dev/null", "-f", "csv",
                        "--force-size", "-q", "--clock", "1kHz")
     assert code == 0, err
+
+
+# ---- parser scale ----------------------------------------------------------------------
+
+def test_huge_notation_and_file_refused_quickly(cli, tmp_path):
+    t = time.perf_counter()
+    code, out, err = cli("check", "{⇕(w0); " + "⇑(r0,w1); " * 7000 + "}")
+    assert code == 2
+    assert err.strip() == "<argument>:1:1: error: a notation is 70,009 characters long; marchkit reads at most 65,536"
+    big = tmp_path / "many.march"
+    big.write_text("".join(f'test "t{i}"\n  {{⇕(w0); ⇑(r0,w1)}}\n' for i in range(150_000)))
+    code, out, err = cli("check", str(big))
+    assert code == 2
+    assert "a file of tests is" in err and "marchkit reads at most 262,144 characters (split it into several files)" in err
+    q = tmp_path / "q.march"
+    q.write_text('test "' + "a" * 5000 + '"\n {⇕(w0)}\n')
+    code, out, err = cli("check", str(q))
+    assert code == 2 and f"{q}:1:6: error: a quoted string longer than 4,096 characters" in err
+    assert time.perf_counter() - t < 10
+
+
+def test_long_line_error_shows_a_window_around_the_caret(cli):
+    text = "{⇕(w0); " + "⇑(r0,w1); " * 3000 + "⇓(r1,x)}"
+    code, out, err = cli("check", text)
+    assert code == 2
+    lines = err.rstrip("\n").split("\n")
+    assert lines[0] == "<argument>:1:30014: error: unexpected 'x'; expected an operation (r0, r1, w0 or w1)"
+    assert lines[1] == "    …" + text[30013 - 60:]
+    assert lines[2].index("^") == lines[1].index("x")
+    assert len(err) < 400          # not the 30 kB line twice
+
+
+def test_byte_order_mark_in_a_test_file(cli, tmp_path):
+    p = tmp_path / "bom.march"
+    p.write_bytes("\ufefftest \"Wren quick\"\n  {⇕(w0); ⇑(r0)}\n".encode())
+    code, out, err = cli("check", str(p))
+    assert code == 0, err
+    assert out.strip() == f"{p}: 1 test, 0 errors, 0 warnings"

@@ -385,15 +385,20 @@ def check_error(err: BaseException, text: str, filename: str) -> None:
     assert 1 <= line <= len(lines), (line, len(lines))
     src = lines[line - 1]
     assert 1 <= col <= len(src) + 1, (col, src)
+    # a long line is shown as a window around the caret (marchkit.errors._window)
+    from marchkit.errors import _window
+
+    end = err.pos.end_column
+    shown, scol, _ = _window(src, col, end - col if end and end > col else 1)
     assert rows[1].startswith("    ")
-    assert _blank(rows[1][4:]).rstrip() == _blank(src).rstrip(), (rows[1], src)
+    assert _blank(rows[1][4:]).rstrip() == _blank(shown).rstrip(), (rows[1], src)
     assert rows[2].startswith("    ")
     caret = rows[2][4:]
     lead = len(caret) - len(caret.lstrip(" "))
-    assert lead == col - 1, (caret, col)
+    assert lead == scol - 1, (caret, col)
     width = len(caret) - lead
     assert width >= 1 and set(caret[lead:]) == {"^"}
-    assert col - 1 + width <= len(src) + 1, (col, width, src)
+    assert scol - 1 + width <= len(shown) + 1, (col, width, src)
 
 
 def parse_both(text: str) -> None:
