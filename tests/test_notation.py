@@ -606,7 +606,7 @@ def test_read_of_the_wrong_value_is_an_error():
     errors = [d for d in diags if d.severity == "error"]
     assert len(errors) == 1
     msg = errors[0].message
-    assert "element 2" in msg and "operation 1" in msg and "r1" in msg
+    assert "M1 " in msg and "op 0 " in msg and "r1" in msg
     assert (errors[0].pos.line, errors[0].pos.column) == (1, 11)
 
 
@@ -617,7 +617,7 @@ def test_ensure_consistent_raises_with_a_caret_at_the_read():
         ensure_consistent(t)
     e = ei.value
     assert e.exit_code == 2
-    assert "kestrel typo" in e.message and "element 3" in e.message
+    assert "kestrel typo" in e.message and "M2 " in e.message
     rows = e.render().splitlines()
     assert rows[0].startswith("<string>:1:21: error: ")
     assert rows[1] == "    " + text

@@ -177,3 +177,40 @@ def atomic_write(path: str | Path, data: bytes | str, force: bool = False) -> No
     from ..files import write_file
 
     write_file(path, data, force=force)
+
+
+EXIT_REQUIREMENT = 3     # --require not met (distinct from 2, bad input)
+
+
+def add_summary_options(p) -> None:
+    g = p.add_argument_group("summary and pass requirements")
+    g.add_argument("--weights", metavar="CLASS=W,...",
+                   help="class weights for the class-weighted score (default 1 each; also the memory "
+                   "file's [weights]), e.g. SAF=5,AF=3,CFid=1")
+    g.add_argument("--require", metavar="CLASS=PCT,...",
+                   help="pass requirements, e.g. SAF=100,TF=100,CFid=99.5 (also score=PCT, total=PCT); "
+                   f"exit status {EXIT_REQUIREMENT} when one is not met")
+
+
+def summary_from_args(args, selection):
+    """(weights, requirements) checked against the fault selection before any grading."""
+    from ..grade.score import parse_requirements, parse_weights
+
+    mf = getattr(args, "memory_file", None)
+    classes = selection.classes
+    weights = parse_weights(args.weights, classes, mf.weights if mf is not None else None)
+    return weights, parse_requirements(args.require, classes)
+
+
+def provenance(args, mem, retention, engine: str, notation=None) -> dict:
+    """What produced a JSON result: enough to run it again."""
+    from .. import __version__
+    from ..faults import format_seconds
+
+    out = {"tool": "marchkit", "version": __version__, "engine": engine,
+           "faults": args.faults, "pairs": args.pairs,
+           "retention": [format_seconds(t) for t in retention],
+           "memory": mem.describe(), "memory_file": getattr(args, "memory", None)}
+    if notation is not None:
+        out["notation"] = notation
+    return out
