@@ -123,7 +123,7 @@ def test_grade_usage_error(cli):
 
 def test_demo_runs(cli):
     code, out, err = cli("demo")
-    assert code == 0 and "March SS" in out and "kestrel_l1_sram" in out
+    assert code == 0 and "March SS" in out and "kestrel_demo_sram" in out
 
 
 def test_console_script_runs_without_traceback_on_bad_input(tmp_path):

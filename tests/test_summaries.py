@@ -148,3 +148,28 @@ def test_one_column_note_without_mux(cli):
     assert "without --mux the array is one column wide" in out
     code, out, err = cli("grade", "MATS+", "--words", "8", "--mux", "2")
     assert "one column wide" not in out
+
+
+def test_small_items(cli):
+    # --faults help lists every selection word (issue 16 item 10)
+    code, out, err = cli("grade", "--help")
+    flat = " ".join(out.split())
+    for word in ("static", "classic", "retention", "dynamic", "all"):
+        assert word in flat
+    # the demo memory does not share a name with the example file's memory
+    code, out, err = cli("demo")
+    assert "kestrel_demo_sram" in out and "kestrel_l1_sram" not in out
+    # library notes cite papers, never an unnamed source
+    from marchkit.notation import library
+
+    for t in library():
+        assert "fact sheet" not in (t.note or "").lower()
+
+
+def test_example_memory_file_carries_retention_and_weights(cli):
+    from pathlib import Path
+
+    mem = str(Path(__file__).resolve().parents[1] / "examples" / "kestrel_l1_sram.toml")
+    code, out, err = cli("grade", "IFA-9", "--memory", mem, "--faults", "SAF,AF,DRF")
+    assert code == 0, err
+    assert "retention τ 5ms, 50ms" in out and "weights SAF=3, AF=2, DRF=2" in out

@@ -8,7 +8,7 @@ import tempfile
 from pathlib import Path
 
 DEMO_MEMORY = dict(
-    name="kestrel_l1_sram", words=1024, bits=16, mux=4, clock="200MHz",
+    name="kestrel_demo_sram", words=1024, bits=16, mux=4, clock="200MHz",
     order="linear", backgrounds=("solid",),
 )
 DEFAULT_WORDS = 64
@@ -107,7 +107,9 @@ def memory_from_args(args):
 def add_fault_options(p) -> None:
     g = p.add_argument_group("faults")
     g.add_argument("--faults", default="static", metavar="LIST",
-                   help="fault selection: static, classic, retention, all, class names (SAF, CFds, DRF, ...), kinds (SA0, AF:alias) or primitives like '<0w1/0/->' (comma list; default static)")
+                   help="fault selection: static (48 primitives), classic (SAF TF SOF AF CFin CFid CFst), retention (DRF), "
+                   "dynamic (30 single-cell two-operation primitives), all, class names (SAF, CFds, DRF, dRDF, ...), "
+                   "kinds (SA0, AF:alias) or primitives like '<0w1/0/->' (comma list; default static)")
     g.add_argument("--pairs", default="neighbours", metavar="SCOPE",
                    help="cell pairs for two-cell faults: all, neighbours, word, sample:K[:SEED] (comma list = union; default neighbours)")
     g.add_argument("--retention", default=None, metavar="TIMES",
