@@ -173,3 +173,24 @@ def test_example_memory_file_carries_retention_and_weights(cli):
     code, out, err = cli("grade", "IFA-9", "--memory", mem, "--faults", "SAF,AF,DRF")
     assert code == 0, err
     assert "retention τ 5ms, 50ms" in out and "weights SAF=3, AF=2, DRF=2" in out
+
+
+def test_check_reports_every_independent_error_and_warns(cli, tmp_path):
+    bad = tmp_path / "wren.march"
+    bad.write_text('test "a"\n  {⇕(w0); ⇑(r0,w2); ⇓(r1,w0)}\ntest "b"\n  lenght 5n\n  {⇕(w0)}\n'
+                   'test "c"\n  {⇕(w0); ⇑(r0); ⇓(r9)}\n')
+    code, out, err = cli("check", str(bad))
+    assert code == 2
+    assert out.strip() == f"{bad}: 3 syntax errors"
+    heads = [ln for ln in err.splitlines() if ": error: " in ln]
+    assert heads == [f"{bad}:2:16: error: unexpected 'w2'; expected an operation (r0, r1, w0 or w1)",
+                     f"{bad}:4:3: error: unexpected 'lenght'; expected 'note', 'source', 'targets', '{{'",
+                     f"{bad}:7:20: error: unexpected 'r9'; expected an operation (r0, r1, w0 or w1)"]
+    ok = tmp_path / "ok.march"
+    ok.write_text('test "March C-"\n  targets SAF, CFxx\n  {⇕(w0); ⇑(r0,w1)}\n')
+    code, out, err = cli("check", str(ok))
+    assert code == 0 and out.strip() == f"{ok}: 1 test, 0 errors, 2 warnings"
+    assert "warning: test 'March C-' has the name of the library's 'March C-' but different elements" in err
+    assert "warning: unknown target 'CFxx'" in err
+    code, out, err = cli("check", "--strict", str(ok))
+    assert code == 2
