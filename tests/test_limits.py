@@ -219,3 +219,15 @@ def test_byte_order_mark_in_a_test_file(cli, tmp_path):
     code, out, err = cli("check", str(p))
     assert code == 0, err
     assert out.strip() == f"{p}: 1 test, 0 errors, 0 warnings"
+
+
+def test_reference_engine_estimates_and_refuses(cli):
+    t = time.perf_counter()
+    code, out, err = cli("grade", "MATS+", "--faults", "CFds", "--pairs", "all", "--words", "65536",
+                         "--engine", "reference")
+    assert time.perf_counter() - t < 5
+    assert code == 2
+    assert err.startswith("error: the reference engine would take about 8.6e+03 years here (1.4e+17 op-steps")
+    assert "it refuses runs over 2 minutes: use --force-time" in err
+    code, out, err = cli("grade", "MATS+", "--faults", "SAF", "--words", "16", "--engine", "reference")
+    assert code == 0 and "engine reference" in out

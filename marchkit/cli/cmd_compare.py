@@ -77,7 +77,7 @@ def run(args) -> int:
     from ..errors import InputError
     from ..faults import select_faults
     from ..report import check_sort_key, compare_tests
-    from .common import (EXIT_REQUIREMENT, atomic_write, check_sizes, console, memory_from_args, provenance,
+    from .common import (EXIT_REQUIREMENT, atomic_write, check_reference_time, check_sizes, console, memory_from_args, provenance,
                          retention_from_args, summary_from_args)
 
     if not args.tests and not args.library:
@@ -88,6 +88,7 @@ def run(args) -> int:
     mem = memory_from_args(args)
     retention = retention_from_args(args)
     check_sizes(mem, args.faults, args.pairs, retention)
+    check_reference_time(args, tests, mem, retention)
     selection = select_faults(args.faults, retention)
     weights, requirements = summary_from_args(args, selection)
     sort = check_sort_key(args.sort, selection.classes)

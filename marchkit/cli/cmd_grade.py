@@ -86,7 +86,7 @@ def make_progress(enabled: bool):
 def run(args) -> int:
     from ..faults import select_faults
     from ..grade import grade
-    from .common import (EXIT_REQUIREMENT, check_sizes, console, load_test, memory_from_args, provenance,
+    from .common import (EXIT_REQUIREMENT, check_reference_time, check_sizes, console, load_test, memory_from_args, provenance,
                          retention_from_args, summary_from_args)
 
     # everything that can be wrong with the command is found before any grading
@@ -102,6 +102,7 @@ def run(args) -> int:
         target_kind(args.report, args.force)
     retention = retention_from_args(args)
     check_sizes(mem, args.faults, args.pairs, retention)
+    check_reference_time(args, [test], mem, retention)
     weights, requirements = summary_from_args(args, select_faults(args.faults, retention))
     prog, cb = make_progress(sys.stderr.isatty() and not args.json)
     if prog:

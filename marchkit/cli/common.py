@@ -116,7 +116,10 @@ def add_fault_options(p) -> None:
                    help="DRF leakage times τ with units, comma list, each 1ns to 10000s (default: the memory "
                    "file's retention list, else 1ms)")
     g.add_argument("--engine", choices=("fast", "reference"), default="fast",
-                   help="fast (default) or the literal reference simulator (audits; small memories only)")
+                   help="fast (default) or the literal reference simulator (audits; small memories only: its "
+                   "run time is estimated first and runs over 2 minutes are refused without --force-time)")
+    g.add_argument("--force-time", action="store_true",
+                   help="run the reference engine even when its estimated run time exceeds 2 minutes")
 
 
 def retention_from_args(args, mem=None):
@@ -216,3 +219,54 @@ def provenance(args, mem, retention, engine: str, notation=None) -> dict:
     if notation is not None:
         out["notation"] = notation
     return out
+
+
+REFERENCE_STEPS_PER_SECOND = 500_000     # measured: 0.5-0.9 million op-steps/s (benchmarks/bench_engine.py)
+REFERENCE_TIME_LIMIT = 120.0             # seconds
+
+
+def reference_estimate(tests, mem, faults_spec: str, pairs_spec: str, retention) -> tuple[int, float]:
+    """(op-steps, seconds) the literal reference simulator needs: per instance, every
+    operation of the schedule, for each initial value and ⇕ choice.  Instances are counted
+    exactly without listing them."""
+    from ..faults import instance_count, parse_pairs, select_faults
+    from ..model import schedule
+
+    sel = select_faults(faults_spec, retention)
+    scope = parse_pairs(pairs_spec)
+    n = sum(instance_count(k, mem, scope) for k in sel.kinds)
+    steps = 0
+    for t in tests:
+        anys = sum(e.order == "any" for e in t.elements)
+        steps += n * max(1, schedule(t, mem).ops) * 4 * (2 ** min(anys, 64))
+    return steps, steps / REFERENCE_STEPS_PER_SECOND
+
+
+def check_reference_time(args, tests, mem, retention) -> None:
+    if getattr(args, "engine", "fast") != "reference":
+        return
+    from ..errors import EngineLimitError
+
+    steps, secs = reference_estimate(tests, mem, args.faults, args.pairs, retention)
+    if secs > REFERENCE_TIME_LIMIT and not getattr(args, "force_time", False):
+        raise EngineLimitError(
+            f"the reference engine would take about {_duration(secs)} here ({steps:.2g} op-steps at about "
+            f"{REFERENCE_STTEXT}); it refuses runs over {REFERENCE_TIME_LIMIT / 60:g} minutes: use --force-time, "
+            "a smaller memory or fault list, or the default engine (same verdicts)")
+    if secs > 5:
+        sys.stderr.write(f"note: the reference engine will take about {_duration(secs)}\n")
+
+
+REFERENCE_STTEXT = f"{REFERENCE_STEPS_PER_SECOND:,} per second"
+
+
+def _duration(secs: float) -> str:
+    if secs < 90:
+        return f"{secs:.0f} s"
+    if secs < 5400:
+        return f"{secs / 60:.0f} min"
+    if secs < 86400 * 3:
+        return f"{secs / 3600:.1f} hours"
+    if secs < 86400 * 365 * 3:
+        return f"{secs / 86400:.0f} days"
+    return f"{secs / 86400 / 365:.2g} years"
