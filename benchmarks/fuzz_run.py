@@ -233,6 +233,7 @@ def main() -> int:
     ap.add_argument("--seed", type=int, default=1)
     ap.add_argument("--hang", type=float, default=10.0)
     ap.add_argument("--report", help="append the findings' inputs to this file")
+    ap.add_argument("--every", type=int, default=10000, help="print progress every N inputs")
     ap.add_argument("--inject", type=float, default=0.02, help="share of command lines followed by an injection check")
     ap.add_argument("--mix", default="0.45,0.25", help="shares of notations and memory files (the rest: command lines)")
     a = ap.parse_args()
@@ -240,6 +241,8 @@ def main() -> int:
     resource.setrlimit(resource.RLIMIT_AS, (soft, resource.getrlimit(resource.RLIMIT_AS)[1]))
     os.environ["COLUMNS"] = "80"
     signal.signal(signal.SIGALRM, _alarm)
+    stop = []
+    signal.signal(signal.SIGTERM, lambda *_: stop.append(1))    # stop early, still print the summary
     from marchkit.errors import MarchkitError
     from marchkit.model import read_memory_file
     from marchkit.notation import check_test, parse_file_text, parse_notation
@@ -295,12 +298,19 @@ def main() -> int:
             except Exception as e:  # noqa: BLE001 - an escaped exception is a finding
                 findings["traceback"].append((what, type(e).__name__, str(e)[:300]))
             finally:
-                signal.setitimer(signal.ITIMER_REAL, 0)
+                try:
+                    signal.setitimer(signal.ITIMER_REAL, 0)
+                except Hang:            # the alarm fired just as the input ended
+                    findings["hang"].append((what, time.time() - t0))
             dt = time.time() - t0
             spent[kind] += dt
             if dt > slowest[0]:
                 slowest = (dt, what)
-            if (i + 1) % 10000 == 0:
+            if dt > a.hang / 2:
+                print(f"  slow input ({dt:.1f} s): {what!r}"[:600], flush=True)
+            if stop:
+                break
+            if (i + 1) % a.every == 0:
                 print(f"  {i + 1:,} inputs, {time.time() - t_start:.0f} s, findings "
                       + ", ".join(f"{k} {len(v)}" for k, v in findings.items()), flush=True)
     peak_mb = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024

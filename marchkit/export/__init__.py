@@ -105,11 +105,14 @@ def check_stuck(mem, stuck) -> None:
 
 
 def export(test, mem, out: str, fmt: str | None = None, *, physical: bool = False,
-           force: bool = False, stuck=None, max_bytes: int | None = None) -> ExportResult:
+           force: bool = False, stuck=None, max_bytes: int | None = None, pins=None) -> ExportResult:
     """Write ``test`` on ``mem`` to ``out`` (a path or ``-``) in ``fmt``.
 
     ``stuck`` (hex only): ``(logical word, bit, value)`` of a stuck-at cell that the
     generated testbench injects into its SRAM model by default.
+
+    ``pins``: a :class:`~marchkit.export.pins.PinMap` (signal names, polarity, chip enable,
+    byte enables, compare strobe) for the STIL writer; the default names otherwise.
 
     ``max_bytes``: refuse, before writing, an export estimated larger than this (default
     :data:`.budget.DEFAULT_LIMIT`, 1 GB; ``0`` for no limit).  The estimate is in
@@ -125,6 +128,10 @@ def export(test, mem, out: str, fmt: str | None = None, *, physical: bool = Fals
         raise OutputError("a stuck-at cell can only be injected with --format hex (into its SRAM model)")
     check_stuck(mem, stuck)
     plan = Plan(test, mem, physical=physical)
+    if pins is not None:
+        if fmt != "stil" and not pins.is_default:
+            raise OutputError("a pin map (signal names, polarity, enables, strobe) applies to --format stil")
+        plan.pins = pins
     from .budget import DEFAULT_LIMIT, check_budget
 
     estimate = check_budget(plan, fmt, out, DEFAULT_LIMIT if max_bytes is None else (max_bytes or None))

@@ -40,9 +40,51 @@ MEMORY_KEYS: dict[str, Key] = {
     "neighbours": Key((int,), help="4 or 8 physical neighbours"),
     "retention": Key((list, str), items=str, memory=False, help='DRF leakage times, e.g. ["5ms", "50ms"]'),
 }
+# the pins of the array as the tester sees them (export: STIL and VCD signal names, polarity,
+# chip enable, byte enables, compare strobe); see marchkit.export.pins
+PIN_KEYS: dict[str, Key] = {
+    "clock": Key((str,), help="clock pin name"),
+    "address": Key((str,), help="address bus name (pins NAME[0]..)"),
+    "data_in": Key((str,), help="write data bus name"),
+    "data_out": Key((str,), help="read data bus name"),
+    "write_enable": Key((str,), help="write enable pin name"),
+    "read_enable": Key((str,), help="read enable pin name"),
+    "write_enable_active": Key((str,), help='"high" or "low"'),
+    "read_enable_active": Key((str,), help='"high" or "low"'),
+    "chip_enable": Key((str,), help="chip enable pin name (none when absent)"),
+    "chip_enable_active": Key((str,), help='"high" or "low"'),
+    "byte_enables": Key((str,), help="byte enable bus name (none when absent)"),
+    "byte_enables_active": Key((str,), help='"high" or "low"'),
+    "byte_bits": Key((int,), help="data bits per byte enable (default 8)"),
+    "strobe": Key((int, float), help="compare strobe as a fraction of the period (default 0.75)"),
+}
+_PIN_NAME = re.compile(r"[A-Za-z_][A-Za-z0-9_]{1,63}")
+
+
+def pin_problem(key: str, value) -> str | None:
+    """What is wrong with one [pins] value (None when it is fine).  Pin names are plain
+    identifiers of 2 to 64 letters, digits and underscores, safe in STIL, VCD and Verilog
+    (a one-letter name is refused: the semi-ate-stil reader takes it for a waveform
+    character)."""
+    import math as _m
+
+    if key.endswith("_active"):
+        return None if value in ("high", "low") else f'write "high" or "low", not {value!r}'
+    if key == "strobe":
+        ok = isinstance(value, (int, float)) and _m.isfinite(value) and 0 < value < 1
+        return None if ok else f"a fraction of the clock period between 0 and 1 (got {value!r})"
+    if key == "byte_bits":
+        return None if isinstance(value, int) and 1 <= value <= 1024 else f"1 to 1024 (got {value!r})"
+    if value in ("", "none") and key in ("chip_enable", "byte_enables"):
+        return None
+    return None if isinstance(value, str) and _PIN_NAME.fullmatch(value) else \
+        f"{str(value)[:40]!r} is not a pin name (2 to 64 letters, digits and _, starting with a letter)"
+
+
 SECTIONS: dict[str, dict[str, Key] | None] = {
     "memory": MEMORY_KEYS,
     "weights": None,        # class = weight (a number ≥ 0) for the class-weighted score
+    "pins": PIN_KEYS,
 }
 TOML_KEYS = {k: v.types for k, v in MEMORY_KEYS.items()}     # (kept for older callers)
 MAX_FILE_BYTES = 1 << 20
@@ -56,6 +98,7 @@ class MemoryFile:
     retention: tuple = ()               # Fractions (seconds)
     weights: dict = field(default_factory=dict)   # class name → float
     extras: dict = field(default_factory=dict)    # other known keys (memory=False), raw
+    pins: dict = field(default_factory=dict)      # [pins], type-checked (marchkit.export.pins)
 
 
 class MemoryFileError(PositionedError, ModelError):
@@ -263,6 +306,15 @@ def read_memory_file(path: str | Path, **overrides) -> MemoryFile:
         if isinstance(w, bool) or not isinstance(w, (int, float)) or not math.isfinite(w) or w < 0:
             raise err(f"weight of {cls!r} must be a number ≥ 0 (got {w!r})", cls, "weights")
         weights[cls] = float(w)
+    pins = {}
+    for key, value in (others.get("pins") or {}).items():
+        spec = PIN_KEYS.get(key)
+        if spec is None:
+            raise err(f"unknown key {key!r} in [pins]" + did_you_mean(key, PIN_KEYS) + "; [pins] knows: "
+                      + ", ".join(PIN_KEYS), key, "pins")
+        if not isinstance(value, spec.types) or isinstance(value, bool):
+            raise err(f"pins {key} has the wrong type ({type(value).__name__}); {spec.help}", key, "pins")
+        pins[key] = value
     if "words" not in kwargs and overrides.get("words") is None:
         raise MemoryFileError("a memory file needs 'words'", SourcePos(1, 1, fn), text)
     from_file = [k for k in kwargs if overrides.get(k) is None]
@@ -282,7 +334,11 @@ def read_memory_file(path: str | Path, **overrides) -> MemoryFile:
         if pos:
             raise MemoryFileError(e.message, pos, text) from None
         raise
-    return MemoryFile(mem, retention, weights, extras)
+    for key, value in pins.items():
+        problem = pin_problem(key, value)
+        if problem:
+            raise err(f"pins {key}: {problem}", key, "pins")
+    return MemoryFile(mem, retention, weights, extras, pins)
 
 
 def with_changes(mem: Memory, **changes) -> Memory:
