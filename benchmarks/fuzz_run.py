@@ -242,7 +242,11 @@ def main() -> int:
     os.environ["COLUMNS"] = "80"
     signal.signal(signal.SIGALRM, _alarm)
     stop = []
-    signal.signal(signal.SIGTERM, lambda *_: stop.append(1))    # stop early, still print the summary
+
+    def on_term(*_):                # stop early, still print the summary
+        stop.append(1)
+
+    signal.signal(signal.SIGTERM, on_term)
     from marchkit.errors import MarchkitError
     from marchkit.model import read_memory_file
     from marchkit.notation import check_test, parse_file_text, parse_notation
@@ -285,18 +289,24 @@ def main() -> int:
                     Path(files["memory"]).write_bytes(memory_file(rng) if rng.random() < 0.5 else b"[memory]\nwords = 16\nbits = 2\n")
                     what = cli_args(rng, tmp, files)
                     code, out, err = run_cli(what)
+                    signal.signal(signal.SIGTERM, on_term)    # export installs its own handler
+                    if "internal error" in err and "Hang:" in err:   # the alarm went through the guard
+                        raise Hang
                     if code not in (0, 2, 3) or "Traceback" in err or "internal error" in err:
                         findings["traceback"].append((what, code, err[-300:]))
+                        print(f"  finding: {findings['traceback'][-1]!r}"[:800], flush=True)
                     if "out of memory" in err:
                         findings["memory"].append((what, code, err[-200:]))
                     if rng.random() < a.inject and injection_check(rng, tmp, counts):
                         findings["injection"].append((what, "hostile name changed the file"))
             except Hang:
                 findings["hang"].append((what, time.time() - t0))
+                print(f"  finding: hang {findings['hang'][-1]!r}"[:800], flush=True)
             except MemoryError:
                 findings["memory"].append((what, "MemoryError"))
             except Exception as e:  # noqa: BLE001 - an escaped exception is a finding
                 findings["traceback"].append((what, type(e).__name__, str(e)[:300]))
+                print(f"  finding: {findings['traceback'][-1]!r}"[:800], flush=True)
             finally:
                 try:
                     signal.setitimer(signal.ITIMER_REAL, 0)

@@ -155,7 +155,7 @@ def test_export_size_refused_before_writing(cli, tmp_path):
     assert time.perf_counter() - t < 5
     assert code == 2
     assert err.strip() == ("error: the export would write about 721 TB of csv (900,000,005,120 cycles, 100 % of "
-                           "them idle), more than the 1 GB limit; use --force-size to write it anyway; STIL writes "
+                           "them idle), more than the 100 MB limit; use --force-size to write it anyway; STIL writes "
                            "idle runs as loops (--format stil: about 12.9 MB)")
     assert list(tmp_path.iterdir()) == []
 

@@ -266,7 +266,10 @@ amounts = st.one_of(
     st.builds(lambda m, e: Decimal(m).scaleb(e), st.integers(0, 10**6), st.integers(-9, 6)),
     st.just(Decimal("-0")),
 )
-delays = st.builds(Delay, amount=amounts, unit=st.sampled_from(sorted(UNITS)))
+_SCALE = {"ns": Decimal("1e-9"), "us": Decimal("1e-6"), "ms": Decimal("1e-3"), "s": Decimal(1)}
+# the parser refuses delays over 10,000 s (marchkit.notation.parser.MAX_DELAY_SECONDS)
+delays = st.builds(Delay, amount=amounts, unit=st.sampled_from(sorted(UNITS))).filter(
+    lambda d: abs(d.amount) * _SCALE.get(d.unit, 1) <= 10_000)
 
 
 @st.composite

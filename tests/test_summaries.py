@@ -181,7 +181,7 @@ def test_check_reports_every_independent_error_and_warns(cli, tmp_path):
                    'test "c"\n  {⇕(w0); ⇑(r0); ⇓(r9)}\n')
     code, out, err = cli("check", str(bad))
     assert code == 2
-    assert out.strip() == f"{bad}: 3 syntax errors"
+    assert out.strip() == f"{bad}: 3 errors, no test read"
     heads = [ln for ln in err.splitlines() if ": error: " in ln]
     assert heads == [f"{bad}:2:16: error: unexpected 'w2'; expected an operation (r0, r1, w0 or w1)",
                      f"{bad}:4:3: error: unexpected 'lenght'; expected 'note', 'source', 'targets', '{{'",

@@ -68,7 +68,7 @@ def run(args) -> int:
             for x in errs:
                 sys.stderr.write(x.render() + "\n")
             status = 2
-            print(f"{label}: {len(errs)} syntax error{'s' if len(errs) != 1 else ''}")
+            print(f"{label}: {len(errs)} error{'s' if len(errs) != 1 else ''}, no test read")
             continue
         except MarchkitError as e:  # InputError for unreadable files
             sys.stderr.write(e.render() + "\n")

@@ -34,7 +34,7 @@ def register(sub):
                    help="output file ('-' for standard output; hex then writes no testbench, nor to a device or pipe)")
     g.add_argument("--force", action="store_true", help="replace existing files")
     g.add_argument("--force-size", action="store_true",
-                   help="write even when the size estimated before writing exceeds 1 GB (the estimate is "
+                   help="write even when the size estimated before writing exceeds 100 MB (the estimate is "
                    "printed either way; long delays make csv, jsonl and vcd huge, stil writes them as loops)")
     g.add_argument("--physical", action="store_true",
                    help="physical (scrambled) word addresses instead of logical ones")

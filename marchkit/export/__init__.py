@@ -115,7 +115,7 @@ def export(test, mem, out: str, fmt: str | None = None, *, physical: bool = Fals
     byte enables, compare strobe) for the STIL writer; the default names otherwise.
 
     ``max_bytes``: refuse, before writing, an export estimated larger than this (default
-    :data:`.budget.DEFAULT_LIMIT`, 1 GB; ``0`` for no limit).  The estimate is in
+    :data:`.budget.DEFAULT_LIMIT`, 100 MB; ``0`` for no limit).  The estimate is in
     ``details["estimated_bytes"]``.
     """
     from .output import Targets

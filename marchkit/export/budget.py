@@ -12,8 +12,8 @@ from __future__ import annotations
 
 import math
 
-DEFAULT_LIMIT = 10**9            # 1 GB
-LIMIT_TEXT = "1 GB"
+DEFAULT_LIMIT = 100 * 10**6      # 100 MB
+LIMIT_TEXT = "100 MB"
 
 
 def cycle_split(plan) -> tuple[int, int, int]:
@@ -50,7 +50,9 @@ def estimate_bytes(plan, fmt: str) -> int:
         per_op = 49 + ab + (12 * b) // 5
         return 4000 + active * per_op + delays * 200
     if fmt == "hex":
-        return 9000 + active * (12 + ha + hb) + delays * 32
+        # an idle run is one word per 2^32 - 1 cycles (marchkit.export.hexfile)
+        idle_words = sum(-(-s.cycles // ((1 << 32) - 1)) for s in plan.segments if s.is_delay)
+        return 9000 + active * (12 + ha + hb) + idle_words * (12 + ha + hb)
     return active + idle
 
 

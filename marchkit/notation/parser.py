@@ -71,6 +71,7 @@ _ESCAPES = {"n": "\n", "t": "\t", "r": "\r"}
 MAX_NOTATION_CHARS = 64 * 1024
 MAX_FILE_CHARS = 256 * 1024
 MAX_STRING_CHARS = 4096
+MAX_DELAY_SECONDS = 10_000             # the same bound as --retention (marchkit.model.timing)
 _LONG_STRING = re.compile(r'"(?:[^"\\\n]|\\.){%d,}' % (MAX_STRING_CHARS + 1))
 
 
@@ -208,8 +209,12 @@ class _Builder:
             amount, unit = DEFAULT_DELAY
         else:
             dur = tree.children[1]
-            amount = Decimal(str(dur.children[0]))
+            amount = Decimal(str(dur.children[0]))      # exact, whatever its length or exponent
             unit = UNIT_WORDS[str(dur.children[1])]
+            secs = amount * {"ns": Decimal("1e-9"), "us": Decimal("1e-6"), "ms": Decimal("1e-3"), "s": Decimal(1)}[unit]
+            if not secs.is_finite() or secs > MAX_DELAY_SECONDS:
+                raise self.err(f"a delay lasts at most {MAX_DELAY_SECONDS:,} s (a retention pause of hours is "
+                               "not a march test)", dur.meta)
         return Delay(amount, unit, pos=_pos(tree.meta, self.filename))
 
     def notation(self, tree, **meta):
