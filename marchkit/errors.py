@@ -67,14 +67,31 @@ class PositionedError(InputError):
         line = self.source_line()
         if line is not None:
             # one column per character: tabs and other blanks (CR, form feed, ...) show as a space
-            line = "".join(" " if c.isspace() else c for c in line)
             col = max(1, self.pos.column)
             width = 1
             if self.pos.end_column and self.pos.end_column > col:
                 width = self.pos.end_column - col
+            line, col, width = _window(line, col, width)
+            line = "".join(" " if c.isspace() else c for c in line)
             out.append(f"    {line}")
             out.append("    " + " " * (col - 1) + "^" * width)
         return "\n".join(out)
+
+
+WINDOW = 60      # characters shown on each side of the caret in a long line
+
+
+def _window(line: str, col: int, width: int) -> tuple[str, int, int]:
+    """A long line cut to a window around the caret (``…`` marks the cuts); the column and
+    the caret width follow the cut."""
+    width = min(width, WINDOW)
+    if len(line) <= 2 * WINDOW + 20:
+        return line, col, width
+    lo = max(0, col - 1 - WINDOW)
+    hi = min(len(line), col - 1 + width + WINDOW)
+    head = "…" if lo > 0 else ""
+    tail = "…" if hi < len(line) else ""
+    return head + line[lo:hi] + tail, col - lo + len(head), width
 
 
 class NotationSyntaxError(PositionedError):

@@ -18,27 +18,75 @@ SECONDS_PER_UNIT = {"ns": Fraction(1, 10**9), "us": Fraction(1, 10**6), "ms": Fr
 _FREQ_UNITS = {"hz": 1, "khz": 10**3, "mhz": 10**6, "ghz": 10**9}
 
 
-def parse_frequency(text: str | float | int) -> Fraction:
-    """``100MHz``, ``1.2 GHz``, ``250e6`` (Hz) → Hz as an exact fraction."""
-    if isinstance(text, (int, float)):
-        f = Fraction(str(text))
+# limits every clock and duration is checked against before any work (stated in --help)
+MIN_CLOCK_HZ = 1
+MAX_CLOCK_HZ = 10**11                 # 100 GHz
+MIN_DURATION = Fraction(1, 10**9)     # 1 ns
+MAX_DURATION = Fraction(10**4)        # 10 000 s (2.8 hours)
+MAX_NUMBER_TEXT = 40                  # characters in one number
+CLOCK_LIMITS = "1Hz to 100GHz"
+DURATION_LIMITS = "1ns to 10000s"
+
+_NUMBER = r"([0-9]+(?:\.[0-9]*)?(?:[eE][+-]?[0-9]+)?|\.[0-9]+(?:[eE][+-]?[0-9]+)?)"
+
+
+def _finite(text: str, what: str, whole: str | None = None) -> Fraction:
+    """A decimal number text as an exact fraction, refusing absurd exponents quickly (the
+    float conversion says inf / 0 long before Fraction would expand 10^9999999)."""
+    f = float(text)
+    if not math.isfinite(f):
+        raise ModelError(f"{what} {(whole or text).strip()!r} is too large")
+    return Fraction(text)
+
+
+def parse_frequency(text: str | float | int, require_unit: bool = False) -> Fraction:
+    """``100MHz``, ``1.2 GHz``, ``250e6`` (Hz) → Hz as an exact fraction, between 1 Hz and
+    100 GHz.  With ``require_unit`` a bare number is refused (the command line and memory
+    files require a unit: ``--clock 200`` is far more likely 200 MHz than 200 Hz)."""
+    if isinstance(text, bool):
+        raise ModelError(f"clock {text!r} is not a frequency such as 100MHz")
+    if isinstance(text, Fraction):
+        f = text
+    elif isinstance(text, (int, float)):
+        if require_unit:
+            raise ModelError(f"clock {text!r} has no unit; write it with one, e.g. \"{text}MHz\"")
+        if isinstance(text, float) and not math.isfinite(text):
+            raise ModelError(f"clock {text!r} is not a finite frequency")
+        f = Fraction(str(text)) if isinstance(text, float) else Fraction(text)
     else:
-        m = re.fullmatch(r"\s*([0-9]+(?:\.[0-9]*)?(?:[eE][+-]?[0-9]+)?)\s*([kKmMgG]?[hH][zZ])?\s*", text)
+        if len(text) > MAX_NUMBER_TEXT:
+            raise ModelError(f"clock {text[:20]!r}… is too long for a frequency such as 100MHz")
+        m = re.fullmatch(r"\s*" + _NUMBER + r"\s*([kKmMgG]?[hH][zZ])?\s*", text)
         if not m:
             raise ModelError(f"clock {text!r} is not a frequency such as 100MHz")
-        f = Fraction(m.group(1)) * _FREQ_UNITS[(m.group(2) or "hz").lower()]
+        if require_unit and not m.group(2):
+            raise ModelError(f"clock {text!r} has no unit; write it with one, e.g. {text.strip()}MHz "
+                             "(Hz, kHz, MHz, GHz)")
+        if float(m.group(1)) == 0:
+            raise ModelError("the clock frequency must be positive")
+        f = _finite(m.group(1), "clock", text) * _FREQ_UNITS[(m.group(2) or "hz").lower()]
     if f <= 0:
         raise ModelError("the clock frequency must be positive")
+    if not MIN_CLOCK_HZ <= f <= MAX_CLOCK_HZ:
+        raise ModelError(f"clock {text!r} is outside the range marchkit models ({CLOCK_LIMITS})")
     return f
 
 
 def parse_duration(text: str) -> Fraction:
-    """``10ms``, ``64 us``, ``2s`` → seconds."""
-    m = re.fullmatch(r"\s*([0-9]+(?:\.[0-9]*)?(?:[eE][+-]?[0-9]+)?)\s*(ns|us|µs|ms|s)\s*", str(text))
+    """``10ms``, ``64 us``, ``2s`` → seconds, between 1 ns and 10 000 s."""
+    text = str(text)
+    if len(text) > MAX_NUMBER_TEXT:
+        raise ModelError(f"{text[:20]!r}… is too long for a duration such as 10ms")
+    m = re.fullmatch(r"\s*" + _NUMBER + r"\s*(ns|us|µs|ms|s)\s*", text)
     if not m:
-        raise ModelError(f"{text!r} is not a duration such as 10ms")
+        raise ModelError(f"{text!r} is not a duration such as 10ms (a number and ns, us, ms or s)")
     unit = SECONDS_PER_UNIT[m.group(2).replace("µs", "us")]
-    return Fraction(m.group(1)) * unit
+    if float(m.group(1)) == 0:
+        raise ModelError(f"duration {text.strip()!r} must be longer than zero ({DURATION_LIMITS})")
+    d = _finite(m.group(1), "duration", text) * unit
+    if not MIN_DURATION <= d <= MAX_DURATION:
+        raise ModelError(f"duration {text.strip()!r} is outside {DURATION_LIMITS}")
+    return d
 
 
 def seconds_to_cycles(seconds: Fraction, clock_hz: Fraction) -> int:

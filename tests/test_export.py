@@ -546,7 +546,7 @@ def test_file_mode_follows_the_umask(tmp_path):
     assert (tmp_path / "p.csv").stat().st_mode & 0o777 == 0o644
 
 
-BIG = ["export", "March C-", "--words", str(1 << 20), "--bits", "8"]    # 10,485,760 cycles
+BIG = ["export", "March C-", "--words", str(1 << 20), "--bits", "8", "--force-size"]    # 10,485,760 cycles
 
 
 @pytest.mark.parametrize("sig", [signal.SIGKILL, signal.SIGTERM])

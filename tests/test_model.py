@@ -596,7 +596,7 @@ def test_good_memory_file(tmp_path):
 
 
 def test_top_level_keys_and_default_name(tmp_path):
-    m = load_memory_file(_write(tmp_path, "words = 32\nbits = 4\nclock = 50e6\n", "tern7_regfile.toml"))
+    m = load_memory_file(_write(tmp_path, "words = 32\nbits = 4\nclock = \"50MHz\"\n", "tern7_regfile.toml"))
     assert (m.words, m.bits, m.clock_hz, m.name) == (32, 4, 50_000_000, "tern7_regfile")
 
 
@@ -622,9 +622,9 @@ def test_unknown_key_has_line_column_and_caret(tmp_path):
     assert (e.pos.line, e.pos.column) == (3, 3)
     text = e.render()
     lines = text.split("\n")
-    assert lines[0] == f"{p}:3:3: error: unknown key 'wrods'; a memory file knows: " + \
+    assert lines[0] == f"{p}:3:3: error: unknown key 'wrods' (did you mean 'words'?); a memory file knows: " + \
         "backgrounds, bits, clock, mux, name, neighbours, order, page, read_cycles, refresh, " \
-        "refresh_during_delays, refresh_scheme, scramble_bits, scramble_xor, words, write_cycles"
+        "refresh_during_delays, refresh_scheme, retention, scramble_bits, scramble_xor, words, write_cycles"
     assert lines[1] == "      wrods = 16"
     assert lines[2] == "      ^^^^^"
     assert e.exit_code == 2

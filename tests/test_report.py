@@ -144,8 +144,11 @@ def test_pareto_uses_exact_coverage():
     # 1/3 and its float differ in the last bit; the rows compare exact fractions
     a = fake("one", 4, {"A": 10, "B": 15})    # 25/100
     b = fake("two", 4, {"A": 15, "B": 10})    # 25/100, same cycles: both on the front
-    cmp = compare_results([a, b])
+    cmp = compare_results([a, b], front_on="coverage")
     assert [r.pareto for r in cmp.rows] == [True, True]
+    # on the class-weighted score they differ: (10/40 + 15/60)/2 < (15/40 + 10/60)/2
+    cmp = compare_results([a, b])
+    assert [r.pareto for r in cmp.rows] == [False, True]
 
 
 # ---- rows, sorting, JSON and CSV from stand-in results -----------------------------------
@@ -166,7 +169,8 @@ def test_rows_from_results():
     assert {k: r.pareto for k, r in by.items()} == {"Slowpoke": False, "Quick": True, "Thorough": True, "test 1": True}
     q = by["Quick"]
     assert (q.cycles, q.detected, q.instances) == (192, 85, 100)
-    assert q.per_kcycle == pytest.approx(1000 * 85 / 192)
+    # score: mean of the class coverages (A 40/40, B 45/60) with equal weights
+    assert q.exact_score == (Fraction(1) + Fraction(3, 4)) / 2
     assert q.classes == {"A": 1.0, "B": 0.75}
     assert q.seconds == pytest.approx(192 / 50e6)
     assert [r.label for r in cmp.front] == ["test 1", "Quick", "Thorough"]
@@ -180,8 +184,8 @@ def test_sorting():
     assert names(sort_rows(cmp.rows, "coverage")) == ["Thorough", "Quick", "Slowpoke", "test 1"]
     assert names(sort_rows(cmp.rows, "name")) == ["Quick", "Slowpoke", "test 1", "Thorough"]
     assert names(sort_rows(cmp.rows, "length")) == ["test 1", "Quick", "Thorough", "Slowpoke"]
-    # yield: 85/192 > 100/384 > 20/96 > 70/640 detected per cycle
-    assert names(sort_rows(cmp.rows, "yield")) == ["Quick", "Thorough", "test 1", "Slowpoke"]
+    # score: Thorough 1, Quick 7/8, Slowpoke (1 + 1/2)/2, test 1 (1/2 + 0)/2
+    assert names(sort_rows(cmp.rows, "score")) == ["Thorough", "Quick", "Slowpoke", "test 1"]
     # by one class: B coverage 1.0, 0.75, 0.5, 0.0
     assert names(sort_rows(cmp.rows, "b")) == ["Thorough", "Quick", "Slowpoke", "test 1"]
     assert names(sort_rows(sort_rows(cmp.rows, "name"), "given")) == names(cmp.rows)
@@ -195,7 +199,7 @@ def test_sorting():
 def test_json_and_csv_shapes():
     cmp = _stand_in_comparison().sorted("coverage")
     js = json.loads(json.dumps(cmp.to_json()))
-    assert set(js) == {"memory", "faults", "tests"}
+    assert set(js) == {"memory", "faults", "tests", "weights", "front_on"}
     assert js["memory"]["words"] == 32 and js["faults"] == ["A", "B"]
     first = js["tests"][0]
     for key in ("name", "ops", "cycles", "seconds", "coverage", "classes", "pareto"):
@@ -268,8 +272,9 @@ def test_six_tests_have_consistent_pareto_flags(six_json):
     # cycles: k·n per test on a 16-word memory with one-cycle operations
     ks = {"MATS+": 5, "March X": 6, "March C-": 10, "March LR": 14, "March SR": 14, "March SS": 22}
     assert {t["name"]: t["cycles"] for t in tests} == {n: 16 * k for n, k in ks.items()}
-    for t in tests:
-        assert t["detected_per_1000_cycles"] == pytest.approx(1000 * t["detected"] / t["cycles"], rel=1e-6)
+    for t in tests:    # the score is the mean of the class coverages (equal weights)
+        graded = [v for v in t["classes"].values() if v is not None]
+        assert t["score"] == pytest.approx(sum(graded) / len(graded), rel=1e-9)
 
 
 @pytest.fixture(scope="module")
@@ -286,9 +291,9 @@ def test_comparison_figure_axes(real_comparison):
 
     fig = comparison_figure(real_comparison)
     trade, heat = (a for a in fig.axes if a.get_title(loc="left"))
-    assert trade.get_xlabel().startswith("test time") and "coverage" in trade.get_ylabel()
+    assert trade.get_xlabel().startswith("test time") and "score" in trade.get_ylabel()
     assert heat.get_xlabel() == "fault class" and heat.get_ylabel().startswith("test")
-    assert [t.get_text() for t in heat.get_xticklabels()] == list(real_comparison.classes) + ["total"]
+    assert [t.get_text() for t in heat.get_xticklabels()] == list(real_comparison.classes) + ["score"]
     assert [t.get_text() for t in heat.get_yticklabels()] == [r.label for r in real_comparison.rows]
     # one label per test on the trade-off panel, and no two labels overlap
     renderer = fig.canvas.get_renderer()
@@ -347,7 +352,7 @@ def test_broken_axis_figure():
     cmp = compare_tests([find_in_library(n) for n in ("MATS+", "March C-", "IFA-9")], make_memory(8),
                         faults="static")
     fig = comparison_figure(cmp)
-    trade = next(a for a in fig.axes if a.get_title(loc="left") == "Coverage against test time")
+    trade = next(a for a in fig.axes if a.get_title(loc="left") == "Score against test time")
     assert "broken after" in trade.get_xlabel()
     right = [a for a in fig.axes if a is not trade and a.get_shared_y_axes().joined(a, trade)]
     assert len(right) == 1

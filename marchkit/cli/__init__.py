@@ -42,24 +42,23 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def main(argv=None) -> int:
-    from ..errors import MarchkitError
+    from .guard import run_guarded
 
-    parser = build_parser()
-    args = parser.parse_args(argv)
-    if not getattr(args, "func", None):
-        parser.print_help()
-        return 2
-    try:
-        return int(args.func(args) or 0)
-    except MarchkitError as e:
-        sys.stderr.write(e.render() + "\n")
-        return e.exit_code
-    except KeyboardInterrupt:
-        sys.stderr.write("interrupted\n")
-        return 130
-    except BrokenPipeError:
-        return 0
+    def body():
+        parser = build_parser()
+        args = parser.parse_args(argv)
+        if not getattr(args, "func", None):
+            parser.print_help()
+            return 2
+        return args.func(args)
+
+    return run_guarded(body)
 
 
 def entry() -> None:  # pragma: no cover
-    sys.exit(main())
+    try:
+        code = main()
+    except KeyboardInterrupt:
+        sys.stderr.write("interrupted\n")
+        code = 130
+    sys.exit(code)

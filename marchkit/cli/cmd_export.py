@@ -33,10 +33,19 @@ def register(sub):
     g.add_argument("-o", "--output", required=True, metavar="FILE",
                    help="output file ('-' for standard output; hex then writes no testbench, nor to a device or pipe)")
     g.add_argument("--force", action="store_true", help="replace existing files")
+    g.add_argument("--force-size", action="store_true",
+                   help="write even when the size estimated before writing exceeds 100 MB (the estimate is "
+                   "printed either way; long delays make csv, jsonl and vcd huge, stil writes them as loops)")
     g.add_argument("--physical", action="store_true",
                    help="physical (scrambled) word addresses instead of logical ones")
     g.add_argument("--stuck-at", metavar="WORD:BIT:VALUE",
                    help="hex: the testbench makes this cell (logical word, bit) of its SRAM model stuck at VALUE")
+    g.add_argument("--pins", metavar="KEY=VALUE,...",
+                   help="stil: pin map over the memory file's [pins]: clock, address, data_in, data_out, "
+                   "write_enable, read_enable (names), write_enable_active, read_enable_active (high/low), "
+                   "chip_enable (a name; active on operation cycles, inactive on idle ones), chip_enable_active, "
+                   "byte_enables (a bus name), byte_enables_active, byte_bits (default 8), strobe (compare "
+                   "point as a fraction of the period, default 0.75)")
     g.add_argument("--quiet", "-q", action="store_true", help="print nothing on success")
     p.set_defaults(func=run)
 
@@ -76,9 +85,15 @@ def run(args) -> int:
     mem = memory_from_args(args)
     test = load_test(args.test)
     stuck = parse_stuck(args.stuck_at)
+    pins = None
+    mf = getattr(args, "memory_file", None)
+    if args.pins or (mf is not None and mf.pins):
+        from ..export.pins import pin_map
+
+        pins = pin_map(mf.pins if mf is not None else None, args.pins)
     _stop_on_term()
     res = export(test, mem, args.output, args.format, physical=args.physical, force=args.force,
-                 stuck=stuck)
+                 stuck=stuck, max_bytes=0 if args.force_size else None, pins=pins)
     if not args.quiet:
         out = sys.stderr if args.output == "-" else sys.stdout
         where = "standard output" if args.output == "-" else ", ".join(res.files)

@@ -7,7 +7,7 @@ import sys
 
 
 def register(sub):
-    from .common import add_fault_options, add_memory_options
+    from .common import add_fault_options, add_memory_options, add_summary_options
 
     p = sub.add_parser(
         "grade", help="fault-simulate a test on a memory and grade its coverage",
@@ -17,24 +17,26 @@ def register(sub):
     p.add_argument("test", metavar="TEST")
     add_memory_options(p)
     add_fault_options(p)
+    add_summary_options(p)
     g = p.add_argument_group("output")
     g.add_argument("--json", action="store_true", help="print the result as JSON")
     g.add_argument("--primitives", action="store_true", help="also list every fault kind graded (each primitive, model, linked or neighbourhood fault)")
     g.add_argument("--missed", type=int, default=0, metavar="N",
-                   help="name up to N undetected instances of each fault kind (cells as wWORD or wWORD.bBIT)")
+                   help="name up to N undetected instances of each fault kind (cells as 'word W bit B')")
     g.add_argument("--report", metavar="FILE.html", help="write a self-contained HTML report")
     g.add_argument("--force", action="store_true", help="replace an existing report file")
     p.set_defaults(func=run)
 
 
 def fmt_time(seconds: float) -> str:
-    from ..units import format_time
-
-    return format_time(seconds)
+    for unit, scale in (("s", 1), ("ms", 1e3), ("µs", 1e6), ("ns", 1e9)):
+        if seconds * scale >= 1 or unit == "ns":
+            return f"{seconds * scale:.4g} {unit}"
+    return f"{seconds} s"  # pragma: no cover
 
 
 def fmt_clock(hz) -> str:
-    from ..units import format_frequency
+    from ..report.compare import format_frequency
 
     return format_frequency(hz)
 
@@ -63,9 +65,12 @@ def dram_text(mem) -> str:
             f"{mem.page} page")
 
 
-def element_label(test, index) -> str:
+def element_label(test, index, short: bool = False) -> str:
+    """``M2 ⇑(r1,w0)`` (``M2`` when ``short``): elements count from 0 everywhere in marchkit."""
     if index is None:
         return "—"
+    if short:
+        return f"M{index}"
     from ..notation.printer import format_item
 
     return f"M{index} {format_item(test.elements[index])}"
@@ -90,10 +95,16 @@ def make_progress(enabled: bool):
 
 
 def run(args) -> int:
+    from ..faults import select_faults
     from ..grade import grade
-    from ..notation import format_notation
-    from .common import console, load_test, memory_from_args, retention_from_args, thresholds_from_args
+    from .common import (EXIT_REQUIREMENT, check_reference_time, check_sizes, console, load_test, memory_from_args, provenance,
+                         retention_from_args, summary_from_args, thresholds_from_args)
 
+    # everything that can be wrong with the command is found before any grading
+    if args.missed < 0:
+        from ..errors import InputError
+
+        raise InputError("--missed takes a number of instances, 0 or more")
     mem = memory_from_args(args)
     if args.engine == "fast":          # a size the engine refuses is refused before anything else
         from ..engine.setup import check_limits
@@ -101,30 +112,52 @@ def run(args) -> int:
         check_limits(mem)
     test = load_test(args.test)
     thresholds = thresholds_from_args(args)
+    if args.report is not None:
+        from ..files import target_kind
+
+        target_kind(args.report, args.force)
+    retention = retention_from_args(args)
+    check_sizes(mem, args.faults, args.pairs, retention)
+    check_reference_time(args, [test], mem, retention)
+    weights, requirements = summary_from_args(args, select_faults(args.faults, retention))
     prog, cb = make_progress(sys.stderr.isatty() and not args.json)
     if prog:
         with prog:
-            res = grade(test, mem, args.faults, args.pairs, retention_from_args(args), args.engine, cb,
+            res = grade(test, mem, args.faults, args.pairs, retention, args.engine, cb,
                         examples=args.missed, thresholds=thresholds)
     else:
-        res = grade(test, mem, args.faults, args.pairs, retention_from_args(args), args.engine,
+        res = grade(test, mem, args.faults, args.pairs, retention, args.engine,
                     examples=args.missed, thresholds=thresholds)
-    if args.report:
+    from ..grade.score import class_score, unmet
+
+    score = class_score(res.classes, weights)
+    missing = unmet(res, requirements, weights)
+    if args.report is not None:
         from ..report import write_html_report
 
         write_html_report(res, args.report, force=args.force)
-    if args.missed < 0:
-        from ..errors import InputError
-
-        raise InputError("--missed takes a number of instances, 0 or more")
     if args.json:
-        print(json.dumps(res.to_json(), indent=2, ensure_ascii=False))
-        return 0
-    show_result(res, console(), primitives=args.primitives)
-    show_retention(res, console(), getattr(args, "retention_spread", None))
-    if args.report:
-        console().print(f"report written to {args.report}")
-    return 0
+        from ..notation import format_notation
+
+        js = res.to_json()
+        js["score"] = {"value": float(score), "weights": weights,
+                       "meaning": "weighted mean of the per-class coverages"}
+        if requirements:
+            js["requirements"] = {"required": requirements, "unmet": missing, "met": not missing}
+        js["provenance"] = provenance(args, mem, retention, res.engine, format_notation(res.test))
+        print(json.dumps(js, indent=2, ensure_ascii=False))
+        return EXIT_REQUIREMENT if missing else 0
+    con = console()
+    show_result(res, con, primitives=args.primitives, weights=weights, score=score)
+    show_retention(res, con, getattr(args, "retention_spread", None))
+    if requirements:
+        if missing:
+            con.print(f"[bold red]requirements not met[/bold red]: {'; '.join(missing)}")
+        else:
+            con.print("requirements met: " + ", ".join(f"{k} ≥ {v:g} %" for k, v in requirements.items()))
+    if args.report is not None:
+        con.print(f"report written to {args.report}")
+    return EXIT_REQUIREMENT if missing else 0
 
 
 def show_retention(res, con, spread_text=None) -> None:
@@ -148,14 +181,36 @@ def show_retention(res, con, spread_text=None) -> None:
                   f"{100 * expected_caught(rows, sp.taus):.4g}%")
 
 
-def show_result(res, con, primitives=False) -> None:
+def score_line(score, weights, classes) -> str:
+    from ..grade.score import _pct
+
+    graded = [c for c in classes if c.instances]
+    equal = len({weights.get(c.cls, 1.0) for c in graded}) <= 1
+    how = "equal weights" if equal else "weights " + ", ".join(f"{c.cls}={weights.get(c.cls, 1.0):g}" for c in graded)
+    n = sum(1 for c in graded)
+    return (f"score   {_pct(score)} % "
+            f"(mean of the per-class coverages over {n} class{'es' if n != 1 else ''}, {how})")
+
+
+def show_result(res, con, primitives=False, weights=None, score=None) -> None:
+    """The result on the terminal.  The table adapts to the console width: below 120 columns
+    the element columns show only ``Mi`` (the elements are listed above the table) and the
+    reasons move below it; below 72 the detected counts go too (instances and coverage stay).
+    A number is never cut."""
+    from rich import box
     from rich.table import Table
 
     from ..notation import format_notation
+    from ..report.compare import percent_text
 
     t = res.test
+    width = con.width
+    medium, narrow = width < 120, width < 72
     con.print(f"[bold]{t.display_name}[/bold]  {t.length_text}   {format_notation(t)}")
     con.print(f"memory  {memory_line(res.memory)}")
+    if res.memory.mux == 1 and res.memory.words > 1:
+        con.print("[dim]        without --mux the array is one column wide: each cell's neighbours are "
+                  "the words above and below[/dim]")
     taus = sorted({r.kind.tau for r in res.kinds if r.kind.tau is not None})
     tau_txt = ""
     if taus:
@@ -163,47 +218,64 @@ def show_result(res, con, primitives=False) -> None:
 
         tau_txt = "   retention τ " + ", ".join(format_seconds(x) for x in taus)
     con.print(f"faults  {res.faults_spec}   pairs {res.pairs_spec}{tau_txt}   engine {res.engine}")
-    table = Table(show_edge=False, pad_edge=False)
-    table.add_column("class", style="bold")
-    table.add_column("instances", justify="right")
-    table.add_column("detected", justify="right")
-    table.add_column("coverage", justify="right")
-    table.add_column("first found in", no_wrap=True)
-    table.add_column("all found by", no_wrap=True)
-    table.add_column("why some are missed")
-    from ..units import percent_text
+    if medium:
+        con.print("elements " + "  ".join(element_label(t, i).replace(" ", "\u00a0") for i in range(len(t.elements))))
+    table = Table(show_edge=False, pad_edge=False, box=box.SIMPLE_HEAD if narrow else box.HEAVY_HEAD)
+    table.add_column("class", style="bold", no_wrap=True)
+    table.add_column("instances", justify="right", no_wrap=True)
+    if not narrow:
+        table.add_column("detected", justify="right", no_wrap=True)
+    table.add_column("coverage", justify="right", no_wrap=True)
+    table.add_column("first" if narrow else "first found in", no_wrap=True)
+    table.add_column("all by" if narrow else "all found by", no_wrap=True)
+    if not medium:
+        table.add_column("why some are missed")
 
     def pct(cov, d, n):   # a partial coverage never reads 100 % or 0 %
         return percent_text(cov, 2, d, n) + "%"
 
+    reasons = []
     for c in res.classes:
         cov = pct(c.coverage, c.detected, c.instances)
         style = "" if c.detected == c.instances else ("red" if c.detected == 0 else "yellow")
-        table.add_row(c.cls, f"{c.instances:,}", f"{c.detected:,}", f"[{style}]{cov}[/{style}]" if style else cov,
-                      element_label(t, c.first_by) if c.detected else "—",
-                      element_label(t, c.complete_by) if c.detected else "—", c.reason)
+        complete = c.instances and c.detected == c.instances
+        cells = [c.cls, f"{c.instances:,}"] + ([] if narrow else [f"{c.detected:,}"]) + [
+            f"[{style}]{cov}[/{style}]" if style else cov,
+            element_label(t, c.first_by, medium) if c.detected else "—",
+            # "all found by" only for a class detected completely
+            element_label(t, c.complete_by, medium) if complete else "—",
+        ]
+        if not medium:
+            cells.append(c.reason)
+        elif c.reason:
+            reasons.append((c.cls, c.reason))
+        table.add_row(*cells)
     tot = res.total
     table.add_section()
-    table.add_row("total", f"{tot.instances:,}", f"{tot.detected:,}", pct(tot.coverage, tot.detected, tot.instances), "", "", "")
+    table.add_row("total", f"{tot.instances:,}", *([] if narrow else [f"{tot.detected:,}"]),
+                  pct(tot.coverage, tot.detected, tot.instances), "", "", *([] if medium else [""]))
     con.print(table)
+    if score is not None:
+        con.print(score_line(score, weights or {}, res.classes))
+    if reasons:
+        con.print("why some are missed:")
+        for cls, why in reasons:
+            con.print(f"  [bold]{cls}[/bold]: {why}")
     if res.empty_classes:
         con.print(f"no instances in this pair scope: {', '.join(res.empty_classes)}")
     if primitives and res.primitives:
         pt = Table(title="fault kinds", title_justify="left", show_edge=False, pad_edge=False)
-        for col in ("kind", "class", "instances", "detected", "why some are missed"):
-            pt.add_column(col, justify="right" if col in ("instances", "detected") else "left")
+        cols = ("kind", "class", "instances", "detected") + (() if medium else ("why some are missed",))
+        for col in cols:
+            pt.add_column(col, justify="right" if col in ("instances", "detected") else "left", no_wrap=col != "why some are missed")
         for p in res.primitives:
-            pt.add_row(p.fault, p.cls, f"{p.instances:,}", f"{p.detected:,}", p.reason)
+            pt.add_row(p.fault, p.cls, f"{p.instances:,}", f"{p.detected:,}", *(() if medium else (p.reason,)))
         con.print(pt)
     examples = res.missed_examples()
     if examples:
         con.print("some undetected instances (an engineer's starting point for diagnosis):")
-        mt = Table(show_edge=False, pad_edge=False)
-        mt.add_column("class", style="bold")
-        mt.add_column("instance")
         for cls, text in examples:
-            mt.add_row(cls, text)
-        con.print(mt)
+            con.print(f"  [bold]{cls}[/bold]  {text}")
     delays = len(t.delays)
     con.print(
         f"cost    {t.ops_per_cell} ops per address per run · {res.ops:,} operations · {res.cycles:,} cycles"

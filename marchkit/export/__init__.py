@@ -106,14 +106,24 @@ def check_stuck(mem, stuck) -> None:
 
 
 def export(test, mem, out: str, fmt: str | None = None, *, physical: bool = False,
-           force: bool = False, stuck=None) -> ExportResult:
+           force: bool = False, stuck=None, max_bytes: int | None = None, pins=None) -> ExportResult:
     """Write ``test`` on ``mem`` to ``out`` (a path or ``-``) in ``fmt``.
 
     ``stuck`` (hex only): ``(logical word, bit, value)`` of a stuck-at cell that the
     generated testbench injects into its SRAM model by default.
+
+    ``pins``: a :class:`~marchkit.export.pins.PinMap` (signal names, polarity, chip enable,
+    byte enables, compare strobe) for the STIL writer; the default names otherwise.
+
+    ``max_bytes``: refuse, before writing, an export estimated larger than this (default
+    :data:`.budget.DEFAULT_LIMIT`, 100 MB; ``0`` for no limit).  The estimate is in
+    ``details["estimated_bytes"]``.
     """
     from .output import Targets
 
+    from ..files import target_kind
+
+    target_kind(out, force)          # empty names, directories, "newdir/", ... before any work
     fmt = format_for(out, fmt)
     if stuck is not None and fmt != "hex":
         raise OutputError("a stuck-at cell can only be injected with --format hex (into its SRAM model)")
@@ -125,6 +135,13 @@ def export(test, mem, out: str, fmt: str | None = None, *, physical: bool = Fals
             f"this test repeats an operation {longest:,} times in a row ({plan.cycles:,} cycles in all); "
             f"{fmt} writes every clock cycle, so it takes at most {EXPAND_LIMIT:,} operations per address "
             "visit — export it as stil (repeats become loops) or shorten the repeat")
+    if pins is not None:
+        if fmt != "stil" and not pins.is_default:
+            raise OutputError("a pin map (signal names, polarity, enables, strobe) applies to --format stil")
+        plan.pins = pins
+    from .budget import DEFAULT_LIMIT, check_budget
+
+    estimate = check_budget(plan, fmt, out, DEFAULT_LIMIT if max_bytes is None else (max_bytes or None))
     paths = [out]
     tb_path = sram_path = None
     streamed = out == "-" or (Path(out).exists() and not Path(out).is_file() and not Path(out).is_dir())
@@ -133,6 +150,22 @@ def export(test, mem, out: str, fmt: str | None = None, *, physical: bool = Fals
     if fmt == "hex" and not streamed:
         tb_path, sram_path = companion_paths(out)
         paths += [str(tb_path), str(sram_path)]
+    try:
+        res = _export(plan, out, fmt, paths, tb_path, sram_path, mem, physical, force, stuck)
+        res.details.setdefault("estimated_bytes", estimate)
+        return res
+    except OSError as e:
+        if isinstance(e, BrokenPipeError) and out == "-":
+            raise
+        from ..files import os_error_text
+
+        where = "standard output" if out == "-" else out
+        raise OutputError(f"cannot write {where}: {os_error_text(e)}") from None
+
+
+def _export(plan, out, fmt, paths, tb_path, sram_path, mem, physical, force, stuck) -> ExportResult:
+    from .output import Targets
+
     with Targets(paths, force=force) as targets:
         f = _Counting(targets.open(out))
         details = writer(fmt)(plan, f) or {}

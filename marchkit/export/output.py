@@ -16,7 +16,6 @@ from __future__ import annotations
 import io
 import os
 import sys
-import tempfile
 from pathlib import Path
 
 from ..errors import OutputError
@@ -36,24 +35,20 @@ class Targets:
 
     def __init__(self, paths, force: bool = False):
         self.force = force
+        paths = [os.fspath(p) for p in paths]
         self.paths = [p if p == "-" else Path(p) for p in paths]
         self._open: list[tuple[Path, str, io.BufferedWriter]] = []
         self._streams: list = []
         self._done = False
         self.direct: set[Path] = set()
-        for p in self.paths:
-            if p == "-":
-                continue
-            if p.is_dir():
-                raise OutputError(f"{p} is a directory")
-            if p.exists() and not p.is_file():
-                self.direct.add(p)     # a device or a pipe (/dev/null, a FIFO): written as a stream
-                continue
-            if p.exists() and not force:
-                raise OutputError(f"{p} exists; use --force to replace it")
-            d = p.parent if str(p.parent) else Path(".")
-            if not d.is_dir():
-                raise OutputError(f"cannot write {p}: no directory {d}")
+        from ..files import STREAM, STDOUT, target_kind
+
+        for i, (raw, p) in enumerate(zip(paths, list(self.paths))):
+            kind = target_kind(raw, force)
+            if kind == STDOUT:
+                self.paths[i] = "-"
+            elif kind == STREAM:
+                self.direct.add(p)     # a device or a pipe (/dev/null, a FIFO): written through
 
     def open(self, path):
         """A binary file object for one of the targets."""
@@ -67,12 +62,9 @@ class Targets:
                 raise OutputError(f"cannot write {p}: {e.strerror}") from None
             self._streams.append(f)
             return f
-        d = p.parent if str(p.parent) else Path(".")
-        try:
-            fd, tmp = tempfile.mkstemp(prefix=f".{p.name}.", suffix=".part", dir=d)
-        except OSError as e:
-            raise OutputError(f"cannot write {p}: {e.strerror}") from None
-        os.chmod(tmp, 0o666 & ~_umask())
+        from ..files import make_temp
+
+        fd, tmp = make_temp(p)
         f = os.fdopen(fd, "wb", buffering=BUFFER)
         self._open.append((p, tmp, f))
         return f
@@ -80,28 +72,44 @@ class Targets:
     def commit(self) -> None:
         """Rename every temporary file into place, in the order they were opened reversed
         (the main file, opened first, appears last)."""
+        from ..files import os_error_text
+
         for f in self._streams:
-            f.close()
-        self._streams.clear()
-        for _, _, f in self._open:
-            f.close()
-        for p, tmp, _ in reversed(self._open):
-            if self.force:
-                os.replace(tmp, p)
-                continue
             try:
-                os.link(tmp, p)
-            except FileExistsError:
-                raise OutputError(f"{p} appeared while exporting; use --force to replace it") from None
-            except OSError:
-                # a file system without hard links: rename (no check for a late newcomer)
-                if p.exists():
-                    raise OutputError(f"{p} appeared while exporting; use --force to replace it") from None
-                os.replace(tmp, p)
-                continue
-            os.unlink(tmp)
+                f.close()
+            except OSError as e:
+                raise OutputError(f"cannot write {getattr(f, 'name', 'the output')}: {os_error_text(e)}") from None
+        self._streams.clear()
+        for p, _, f in self._open:
+            try:
+                f.close()
+            except OSError as e:
+                raise OutputError(f"cannot write {p}: {os_error_text(e)}") from None
+        for p, tmp, _ in reversed(self._open):
+            try:
+                self._place(p, tmp)
+            except OSError as e:
+                raise OutputError(f"cannot write {p}: {os_error_text(e)}") from None
         self._open.clear()
         self._done = True
+
+    def _place(self, p: Path, tmp: str) -> None:
+        if self.force:
+            if p.exists() and not p.is_file():
+                raise OutputError(f"{p} appeared while exporting and is not a regular file; not replaced")
+            os.replace(tmp, p)
+            return
+        try:
+            os.link(tmp, p)
+        except FileExistsError:
+            raise OutputError(f"{p} appeared while exporting; use --force to replace it") from None
+        except OSError:
+            # a file system without hard links: rename (no check for a late newcomer)
+            if p.exists() or p.is_symlink():
+                raise OutputError(f"{p} appeared while exporting; use --force to replace it") from None
+            os.replace(tmp, p)
+            return
+        os.unlink(tmp)
 
     def abort(self) -> None:
         for f in self._streams:

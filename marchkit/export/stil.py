@@ -67,25 +67,69 @@ def bus(prefix: str, n: int) -> str:
     return "+".join(f"{prefix}[{i}]" for i in range(n - 1, -1, -1))
 
 
+def _pins(plan):
+    from .pins import PinMap
+
+    return getattr(plan, "pins", None) or PinMap()
+
+
+def _wf(active: str) -> str:
+    """The waveform of a logical 0/1 enable: an active-low pin is driven high for 0."""
+    return "D/U" if active == "high" else "U/D"
+
+
+def _pin_text(pm) -> str:
+    parts = [f"write enable active {pm.write_enable_active}", f"read enable active {pm.read_enable_active}"]
+    if pm.chip_enable:
+        parts.append(f"chip enable {pm.chip_enable} active {pm.chip_enable_active}, inactive on idle cycles")
+    if pm.byte_enables:
+        parts.append(f"byte enables {pm.byte_enables} ({pm.byte_bits} bits each) active {pm.byte_enables_active} on writes")
+    parts.append(f"compare strobe at {pm.strobe:g} of the period")
+    return "; ".join(parts)
+
+
 def header(plan) -> str:
     mem = plan.mem
+    pm = _pins(plan)
     A, B = plan.address_bits, plan.bits
+    nbe = pm.byte_count(B)
     period = Fraction(1) / mem.clock_hz
-    sigs = ["    CLK In;"]
-    sigs += [f"    ADR[{i}] In;" for i in range(A)]
-    sigs += [f"    DI[{i}] In;" for i in range(B)]
-    sigs += ["    WE In;", "    RE In;"]
-    sigs += [f"    DO[{i}] Out;" for i in range(B)]
+    sigs = [f"    {pm.clock} In;"]
+    sigs += [f"    {pm.address}[{i}] In;" for i in range(A)]
+    sigs += [f"    {pm.data_in}[{i}] In;" for i in range(B)]
+    sigs += [f"    {pm.write_enable} In;", f"    {pm.read_enable} In;"]
+    if pm.chip_enable:
+        sigs.append(f"    {pm.chip_enable} In;")
+    sigs += [f"    {pm.byte_enables}[{i}] In;" for i in range(nbe)]
+    sigs += [f"    {pm.data_out}[{i}] Out;" for i in range(B)]
     sig_text = "\n".join(sigs)
+    groups = [f"    ADDR = '{bus(pm.address, A)}';", f"    DIN = '{bus(pm.data_in, B)}';",
+              f"    DOUT = '{bus(pm.data_out, B)}';"]
+    if nbe:
+        groups.append(f"    BEN = '{bus(pm.byte_enables, nbe)}';")
+    group_text = "\n".join(groups)
+    waves = [f"            {pm.clock} {{ P {{ '0ns' D; {time_text(period / 2)} U; }} }}",
+             "            ADDR { 01 { '0ns' D/U; } }",
+             "            DIN { 01 { '0ns' D/U; } }",
+             f"            {pm.write_enable} {{ 01 {{ '0ns' {_wf(pm.write_enable_active)}; }} }}",
+             f"            {pm.read_enable} {{ 01 {{ '0ns' {_wf(pm.read_enable_active)}; }} }}"]
+    if pm.chip_enable:
+        waves.append(f"            {pm.chip_enable} {{ 01 {{ '0ns' {_wf(pm.chip_enable_active)}; }} }}")
+    if nbe:
+        waves.append(f"            BEN {{ 01 {{ '0ns' {_wf(pm.byte_enables_active)}; }} }}")
+    strobe = period * Fraction(pm.strobe).limit_denominator(10**6)
+    waves.append(f"            DOUT {{ LHX {{ '0ns' X; {time_text(strobe)} L/H/X; }} }}")
+    wave_text = "\n".join(waves)
     exact = (Fraction(period) * 10**18).denominator == 1          # at most 9 decimals of ns
     period_note = "" if exact else f"; the clock period is {time_text(period)[1:-1]} rounded"
+    pin_note = "" if pm.is_default else f"\n    Ann {{* pins: {ann_text(_pin_text(pm))} *}}"
     return f"""STIL 1.0;
 
 Header {{
     Title {quoted(f"marchkit: {plan.test.display_name} on {mem.name or 'memory'}")};
     Source {quoted(f"marchkit {__version__}")};
     Ann {{* {ann_text(plan.describe())} *}}
-    Ann {{* {plan.cycles} cycles in {plan.runs} background run(s){period_note} *}}
+    Ann {{* {plan.cycles} cycles in {plan.runs} background run(s){period_note} *}}{pin_note}
 }}
 
 Signals {{
@@ -93,21 +137,14 @@ Signals {{
 }}
 
 SignalGroups {{
-    ADDR = '{bus("ADR", A)}';
-    DIN = '{bus("DI", B)}';
-    DOUT = '{bus("DO", B)}';
+{group_text}
 }}
 
 Timing {{
     WaveformTable {WFT} {{
         Period {time_text(period)};
         Waveforms {{
-            CLK {{ P {{ '0ns' D; {time_text(period / 2)} U; }} }}
-            ADDR {{ 01 {{ '0ns' D/U; }} }}
-            DIN {{ 01 {{ '0ns' D/U; }} }}
-            WE {{ 01 {{ '0ns' D/U; }} }}
-            RE {{ 01 {{ '0ns' D/U; }} }}
-            DOUT {{ LHX {{ '0ns' X; {time_text(period * 3 / 4)} L/H/X; }} }}
+{wave_text}
         }}
     }}
 }}
@@ -129,13 +166,21 @@ def write_stil(plan, f, **_) -> dict:
     from ..notation.printer import format_item
 
     A, B = plan.address_bits, plan.bits
+    pm = _pins(plan)
+    nbe = pm.byte_count(B)
     f.write(header(plan).encode())
     zeros_a = "0" * A
     zero_d, x_d = "0" * B, "X" * B
-    idle_v = f"V {{ CLK=P; ADDR={zeros_a}; DIN={zero_d}; WE=0; RE=0; DOUT={x_d}; }}"
+    we, re_ = pm.write_enable, pm.read_enable
+
+    def extra(active: int, write: int) -> str:
+        out = f" {pm.chip_enable}={active};" if pm.chip_enable else ""
+        return out + (f" BEN={str(write) * nbe};" if nbe else "")
+
+    idle_v = f"V {{ {pm.clock}=P; ADDR={zeros_a}; DIN={zero_d}; {we}=0; {re_}=0;{extra(0, 0)} DOUT={x_d}; }}"
     # "DIN=...; WE=.; RE=.; DOUT=...;" comes from one table per background run
-    probe = f"{zero_d}; WE=1; RE=0; DOUT={x_d};"
-    row = (Row().lit("    V { CLK=P; ADDR=").field("address", A).lit("; DIN=")
+    probe = f"{zero_d}; {we}=1; {re_}=0;{extra(1, 1)} DOUT={x_d};"
+    row = (Row().lit(f"    V {{ {pm.clock}=P; ADDR=").field("address", A).lit("; DIN=")
            .field("data", len(probe)).lit(" }\n"))
     data_tabs: dict[int, np.ndarray] = {}
     vectors = loops = 0
@@ -171,9 +216,9 @@ def write_stil(plan, f, **_) -> dict:
             texts = []
             for d, hl in zip(d01, dhl):
                 d, hl = d.decode(), hl.decode()
-                texts += [f"{d}; WE=1; RE=0; DOUT={x_d};",
-                          f"{zero_d}; WE=0; RE=1; DOUT={x_d};",
-                          f"{zero_d}; WE=0; RE=1; DOUT={hl};"]
+                texts += [f"{d}; {we}=1; {re_}=0;{extra(1, 1)} DOUT={x_d};",
+                          f"{zero_d}; {we}=0; {re_}=1;{extra(1, 0)} DOUT={x_d};",
+                          f"{zero_d}; {we}=0; {re_}=1;{extra(1, 0)} DOUT={hl};"]
             data_tabs[seg.run] = table(texts)
         buf = row.buffer(b.count)
         put_address(row, buf, "address", b, "bin")

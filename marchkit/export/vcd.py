@@ -317,6 +317,13 @@ class _Writer:
             self.prev = [cd[-1] for cd in self.op_codes(last)]
 
 
+def vcd_text(s: str) -> str:
+    """User text (test and memory names) made safe inside a VCD ``$comment``: IEEE 1364
+    ends a section at the keyword ``$end``, so no ``$`` may pass, and readers split on
+    blanks and lines, so control characters become spaces."""
+    return "".join("S" if c == "$" else (" " if (ord(c) < 32 or ord(c) == 127) else c) for c in s)
+
+
 def write_vcd(plan, f, **_) -> dict:
     from vcd import VCDWriter
 
@@ -324,7 +331,7 @@ def write_vcd(plan, f, **_) -> dict:
     ts_text, half, exact = timescale(plan.mem.clock_hz)
     first = next(iter(plan.vectors()), None)
     head = io.StringIO()
-    comment = plan.describe() + f"; {plan.cycles} cycles"
+    comment = vcd_text(plan.describe()) + f"; {plan.cycles} cycles"
     if not exact:
         comment += "; half a clock period is not a whole number of fs: times are rounded down"
     w = VCDWriter(head, timescale=ts_text, date="", comment=comment, version=f"marchkit {__version__}")

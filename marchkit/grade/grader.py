@@ -58,8 +58,10 @@ class GradeResult:
     empty_classes: list = field(default_factory=list)
 
     def missed_examples(self) -> list:
-        """(class, instance text) of the undetected instances named while grading."""
-        return [(r.kind.cls, inst.text(self.memory)) for r in self.kinds for inst in r.missed_examples]
+        """(class, instance text) of the undetected instances named while grading.  Cells read
+        ``word 12 bit 3`` (``word 12`` in a one-bit memory): aggressor and victim are said in
+        full so that nothing reads like an operation."""
+        return [(r.kind.cls, instance_text(inst, self.memory)) for r in self.kinds for inst in r.missed_examples]
 
     def to_json(self) -> dict:
         from ..notation import format_notation
@@ -78,6 +80,21 @@ class GradeResult:
             "total": {"instances": self.total.instances, "detected": self.total.detected,
                       "coverage": self.total.coverage},
         }
+
+
+def instance_text(inst, mem) -> str:
+    """``CFid <↑;0> aggressor word 3 bit 1, victim word 4 bit 1``; AF: ``address 3, address 5``."""
+    kind = inst.kind
+    if kind.family == "af":
+        return f"{kind.text} " + ", ".join(f"address {s}" for s in inst.sites)
+
+    def cell(c):
+        w, b = divmod(c, mem.bits)
+        return f"word {w}" if mem.bits == 1 else f"word {w} bit {b}"
+
+    if len(inst.sites) == 1:
+        return f"{kind.text} cell {cell(inst.sites[0])}"
+    return f"{kind.text} aggressor {cell(inst.sites[0])}, victim {cell(inst.sites[1])}"
 
 
 def _structure(inst, mem, rank) -> str:

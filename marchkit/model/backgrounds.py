@@ -16,6 +16,7 @@ import numpy as np
 
 from ..errors import ModelError
 
+MAX_RUNS = 64    # background runs of one test (each one is a full run of the test)
 NAMES = ("solid", "checkerboard", "rows", "columns", "word")
 
 
@@ -54,6 +55,9 @@ def background_names(mem) -> list[str]:
             )
     if not out:
         raise ModelError("at least one data background is needed")
+    if len(out) > MAX_RUNS:
+        raise ModelError(f"{len(out)} data backgrounds is more than marchkit runs in one grade "
+                         f"({MAX_RUNS}); list fewer")
     return out
 
 
@@ -64,8 +68,8 @@ def background_array(mem, name: str) -> np.ndarray:
     if name == "solid":
         return np.zeros((mem.words, mem.bits), dtype=np.uint8)
     if name.startswith("0x"):
-        v = int(name, 16)
-        row = ((v >> bits) & 1).astype(np.uint8)
+        v = int(name, 16)           # may be wider than 64 bits: shift Python ints, not int64
+        row = np.array([(v >> b) & 1 for b in range(mem.bits)], dtype=np.uint8)
         return np.broadcast_to(row, (mem.words, mem.bits)).copy()
     # parities only: row = p // mux, column = b·mux + p % mux (see geometry), so
     # (row + column) % 2 = (row + slot) % 2 ⊕ (b·mux) % 2 — per word and per bit, not per cell

@@ -20,6 +20,7 @@ from ..errors import ModelError
 
 MAX_WORDS = 1 << 26
 MAX_BITS = 1024
+MAX_OP_CYCLES = 1024     # clock cycles one read or write may take
 
 
 def _is_pow2(n: int) -> bool:
@@ -102,6 +103,9 @@ class Memory:
             raise ModelError("the clock frequency must be positive")
         if self.read_cycles < 1 or self.write_cycles < 1:
             raise ModelError("reads and writes take at least one clock cycle")
+        if self.read_cycles > MAX_OP_CYCLES or self.write_cycles > MAX_OP_CYCLES:
+            raise ModelError(f"reads and writes take at most {MAX_OP_CYCLES} clock cycles "
+                             f"(got read {self.read_cycles}, write {self.write_cycles})")
         if self.neighbours not in (4, 8):
             raise ModelError("neighbours must be 4 (N/S/E/W) or 8 (with diagonals)")
         # orders and backgrounds check themselves

@@ -53,11 +53,18 @@ def parse_order(spec: str) -> tuple[str, int | None]:
         if s.startswith(kind + ":") or s == kind:
             arg = s.partition(":")[2] or ("1" if kind == "stride" else "1")
             try:
+                if len(arg) > 24:
+                    raise ValueError
                 v = int(arg, 0)
             except ValueError:
                 raise ModelError(f"address order {spec!r}: {arg!r} is not a whole number") from None
             if v < 0:
                 raise ModelError(f"address order {spec!r}: the number must not be negative")
+            if kind == "stride" and v > 26:
+                raise ModelError(f"address order {spec!r}: stride 2^{v} is larger than any memory "
+                                 "marchkit models (I at most 26)")
+            if kind == "random" and v >= 1 << 64:
+                raise ModelError(f"address order {spec!r}: the seed must be below 2^64")
             return kind, v
     raise ModelError(
         f"unknown address order {spec!r}; choose linear, gray, complement, stride:I or random:SEED"

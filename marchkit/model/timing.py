@@ -11,8 +11,8 @@ from functools import cached_property
 from fractions import Fraction
 
 
-from ..units import parse_duration, parse_frequency, seconds_to_cycles  # noqa: F401  (re-exported)
-
+from ..units import (CLOCK_LIMITS, DURATION_LIMITS, MAX_CLOCK_HZ, MAX_DURATION,  # noqa: F401  (re-exported)
+                     MIN_CLOCK_HZ, MIN_DURATION, parse_duration, parse_frequency, seconds_to_cycles)
 
 EXPAND_LIMIT = 1 << 16      # operations per address visit the spelled-out views may hold
 

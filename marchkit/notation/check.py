@@ -10,7 +10,9 @@ from .printer import UNICODE_ORDER, format_item
 
 
 def _where(ei: int, el: Element, oi: int, op) -> str:
-    return f"element {ei + 1} {format_item(el)}, operation {oi + 1} '{op.kind}{op.value}'"
+    """Elements M0, M1, … and their operations op 0, op 1, … count from 0, as everywhere
+    in marchkit (grade tables, HTML, the exports' element and op fields)."""
+    return f"M{ei} {format_item(el)} op {oi} '{op.kind}{op.value}'"
 
 
 def check_test(test: MarchTest) -> list[Diagnostic]:

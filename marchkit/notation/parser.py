@@ -65,6 +65,30 @@ def _pos(meta_or_tok, filename: str) -> SourcePos | None:
 
 _ESCAPES = {"n": "\n", "t": "\t", "r": "\r"}
 
+# Up-front limits (the parser runs at some tens of kB/s, linear in the input; these keep
+# every parse under about a second and are stated in the message).  The published library
+# is 15 kB; a long test is well under 1 kB.
+MAX_NOTATION_CHARS = 64 * 1024
+MAX_FILE_CHARS = 256 * 1024
+MAX_STRING_CHARS = 4096
+MAX_DELAY_SECONDS = 10_000             # the same bound as --retention (marchkit.model.timing)
+_LONG_STRING = re.compile(r'"(?:[^"\\\n]|\\.){%d,}' % (MAX_STRING_CHARS + 1))
+
+
+def _check_size(text: str, limit: int, what: str, filename: str) -> None:
+    if len(text) > limit:
+        raise NotationSyntaxError(
+            f"{what} is {len(text):,} characters long; marchkit reads at most {limit:,} "
+            f"(split it into several files)" if what.startswith("a file") else
+            f"{what} is {len(text):,} characters long; marchkit reads at most {limit:,}",
+            SourcePos(1, 1, filename), None)
+    m = _LONG_STRING.search(text)
+    if m:
+        line = text.count("\n", 0, m.start()) + 1
+        col = m.start() - (text.rfind("\n", 0, m.start()) + 1) + 1
+        raise NotationSyntaxError(f"a quoted string longer than {MAX_STRING_CHARS:,} characters",
+                                  SourcePos(line, col, filename, col + 1), text)
+
 
 def _unquote(s: str) -> str:
     """A quoted string's text: ``\\n``, ``\\t``, ``\\r`` are control characters, any other
@@ -97,6 +121,11 @@ def _word_at(text: str, pos: int) -> str:
     return m.group(0) if m else ""
 
 
+def _short(word: str, limit: int = 40) -> str:
+    """A word for a message: a very long one is cut (``…``), with its length."""
+    return word if len(word) <= limit else f"{word[:limit]}… ({len(word):,} characters)"
+
+
 def _end_pos(text: str) -> tuple[int, int]:
     """Line and column just after the last non-blank character; lines end at '\\n' only, as in lark."""
     lines = text.rstrip().split("\n")
@@ -114,11 +143,11 @@ def _convert_lark_error(err, text: str, filename: str) -> NotationSyntaxError:
         word = _word_at(text, err.pos_in_stream)
         allowed = err.allowed or set()
         if word[:1] in "rRwW" and "OPCODE" in allowed:
-            msg = f"unknown operation {word!r}; an operation is r0, r1, w0 or w1"
+            msg = f"unknown operation {_short(word)!r}; an operation is r0, r1, w0 or w1"
         elif "ORDER" in allowed and len(allowed) <= 3:
-            msg = f"unexpected {word!r}; expected {_describe('ORDER')}"
+            msg = f"unexpected {_short(word)!r}; expected {_describe('ORDER')}"
         else:
-            msg = f"unexpected {word!r}; expected {_expected_text(allowed)}"
+            msg = f"unexpected {_short(word)!r}; expected {_expected_text(allowed)}"
         end = col + max(1, len(word))
     elif isinstance(err, lark.UnexpectedEOF):
         msg = f"unexpected end of input; expected {_expected_text(err.expected)}"
@@ -131,7 +160,7 @@ def _convert_lark_error(err, text: str, filename: str) -> NotationSyntaxError:
             line, col = _end_pos(text)
         else:
             shown = str(tok)
-            msg = f"unexpected {shown!r}; expected {_expected_text(err.expected)}"
+            msg = f"unexpected {_short(shown)!r}; expected {_expected_text(err.expected)}"
             if tok.type == "RBRACE" and "ORDER" in err.expected:
                 msg = "a test needs at least one element, e.g. {⇕(w0)}" if str(tok) == "}" else msg
             end = col + max(1, len(shown))
@@ -180,8 +209,12 @@ class _Builder:
             amount, unit = DEFAULT_DELAY
         else:
             dur = tree.children[1]
-            amount = Decimal(str(dur.children[0]))
+            amount = Decimal(str(dur.children[0]))      # exact, whatever its length or exponent
             unit = UNIT_WORDS[str(dur.children[1])]
+            secs = amount * {"ns": Decimal("1e-9"), "us": Decimal("1e-6"), "ms": Decimal("1e-3"), "s": Decimal(1)}[unit]
+            if not secs.is_finite() or secs > MAX_DELAY_SECONDS:
+                raise self.err(f"a delay lasts at most {MAX_DELAY_SECONDS:,} s (a retention pause of hours is "
+                               "not a march test)", dur.meta)
         return Delay(amount, unit, pos=_pos(tree.meta, self.filename))
 
     def notation(self, tree, **meta):
@@ -228,6 +261,7 @@ def parse_notation(text: str, filename: str = "<string>", name: str = "") -> Mar
     """Parse one test in brace notation (Unicode or ASCII spelling)."""
     import lark
 
+    _check_size(text, MAX_NOTATION_CHARS, "a notation", filename)
     try:
         tree = _parser().parse(text, start="notation")
     except lark.exceptions.UnexpectedInput as err:
@@ -242,6 +276,7 @@ def parse_file_text(text: str, filename: str = "<string>") -> list[MarchTest]:
     """Parse a file of march tests: named test blocks, or one bare notation."""
     import lark
 
+    _check_size(text, MAX_FILE_CHARS, "a file of tests", filename)
     try:
         tree = _parser().parse(text, start="file")
     except lark.exceptions.UnexpectedInput as err:
@@ -268,7 +303,10 @@ def parse_file(path: str | Path) -> list[MarchTest]:
 
     p = Path(path)
     try:
-        text = p.read_text(encoding="utf-8")
+        if p.is_file() and p.stat().st_size > 4 * MAX_FILE_CHARS:
+            raise InputError(f"{p}: a file of tests is {p.stat().st_size:,} bytes; marchkit reads at most "
+                             f"{MAX_FILE_CHARS:,} characters (split it into several files)")
+        text = p.read_text(encoding="utf-8-sig")       # a leading byte-order mark is allowed
     except UnicodeDecodeError as e:
         raise InputError(f"{p}: not a UTF-8 text file ({e.reason} at byte {e.start})") from None
     except OSError as e:

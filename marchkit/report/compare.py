@@ -1,12 +1,18 @@
 """Comparing march tests on one memory and one fault list: rows, the Pareto front, sorting,
 and the comparison as JSON or CSV.
 
-A row is one graded test.  Its *yield* is the number of fault instances it detects per
-1 000 clock cycles of test time (delays included), the figure behind "what do I buy with
-each extra cycle?".  The Pareto front is the set of tests that no other test beats on both
-counts at once: test B *dominates* test A when B takes no more cycles and reaches at least
-A's total coverage, and is strictly better in one of the two.  A test is on the front when no
-other test dominates it (two tests with equal cycles and equal coverage are both on it).
+A row is one graded test.  Its **score** is the class-weighted mean of its per-class
+coverages (:mod:`marchkit.grade.score`: every class counts with its weight, equal by default,
+however many instances it has); its *total coverage* counts every instance once, so the
+classes with the most instances (coupling faults) dominate it.  The Pareto front is taken on
+the figure chosen (``front_on``: ``score`` by default, or ``coverage``): test B *dominates*
+test A when B takes no more cycles and reaches at least A's figure, and is strictly better in
+one of the two.  A test is on the front when no other test dominates it (two tests with equal
+cycles and equal figures are both on it).
+
+(There is no "detected faults per 1 000 cycles": the number of instances grows with the
+memory and the pair scope faster than the cycles do, so such a rate grows with the memory
+size and says nothing about the test.)
 
 Nothing here imports matplotlib; the plots live in :mod:`marchkit.report.plots`.
 """
@@ -29,8 +35,9 @@ SORT_KEYS = {
     "length": "operations per cell (k of k·n), shortest first",
     "cycles": "clock cycles (test time), fewest first",
     "coverage": "total coverage, highest first",
-    "yield": "detected faults per 1 000 cycles, highest first",
+    "score": "class-weighted score, highest first",
 }
+FRONT_ON = ("score", "coverage")
 DEFAULT_SORT = "cycles"
 
 
@@ -51,11 +58,11 @@ class Row:
     pareto: bool
     position: int               # index in the order given
     result: object = field(default=None, compare=False, repr=False)   # the GradeResult
+    exact_score: Fraction = Fraction(0)   # class-weighted mean of the class coverages
 
     @property
-    def per_kcycle(self) -> float:
-        """Detected fault instances per 1 000 clock cycles."""
-        return 1000.0 * self.detected / self.cycles if self.cycles else 0.0
+    def score(self) -> float:
+        return float(self.exact_score)
 
     @property
     def exact_coverage(self) -> Fraction:
@@ -73,24 +80,39 @@ class Comparison:
     faults_spec: str
     pairs_spec: str
     memory_label: str = ""
+    weights: dict = field(default_factory=dict)     # class -> weight of the score
+    front_on: str = "score"
+
+    def exact_value(self, r: Row) -> Fraction:
+        """The figure the front is taken on, exactly."""
+        return r.exact_score if self.front_on == "score" else r.exact_coverage
+
+    def value(self, r: Row) -> float:
+        return float(self.exact_value(r))
+
+    @property
+    def value_name(self) -> str:
+        return "score" if self.front_on == "score" else "total coverage"
 
     @property
     def front(self) -> tuple[Row, ...]:
         """The rows on the Pareto front, fewest cycles first."""
-        return tuple(sorted((r for r in self.rows if r.pareto), key=lambda r: (r.cycles, -r.exact_coverage, r.position)))
+        return tuple(sorted((r for r in self.rows if r.pareto), key=lambda r: (r.cycles, -self.exact_value(r), r.position)))
 
     def sorted(self, key: str = DEFAULT_SORT) -> "Comparison":
         return Comparison(sort_rows(self.rows, key), self.memory, self.classes, self.class_instances,
-                          self.faults_spec, self.pairs_spec, self.memory_label)
+                          self.faults_spec, self.pairs_spec, self.memory_label, self.weights, self.front_on)
 
     # ---- output -------------------------------------------------------------------------
     def to_json(self) -> dict:
-        """``{"memory", "faults", "tests": [{"name", "ops", "cycles", "seconds", "coverage",
-        "classes", "pareto", ...}]}``; each test also carries its length, detected and
-        instance counts and detected faults per 1 000 cycles."""
+        """``{"memory", "faults", "weights", "front_on", "tests": [{"name", "ops", "cycles",
+        "seconds", "coverage", "score", "classes", "pareto", ...}]}``; each test also carries
+        its length, detected and instance counts."""
         return {
             "memory": self.memory,
             "faults": list(self.classes),
+            "weights": dict(self.weights),
+            "front_on": self.front_on,
             "tests": [
                 {
                     "name": r.label,
@@ -102,7 +124,7 @@ class Comparison:
                     "instances": r.instances,
                     "detected": r.detected,
                     "coverage": r.coverage,
-                    "detected_per_1000_cycles": round(r.per_kcycle, 6),
+                    "score": r.score,
                     "classes": dict(r.classes),
                     "pareto": r.pareto,
                 }
@@ -115,11 +137,11 @@ class Comparison:
         buf = io.StringIO()
         w = csv.writer(buf, lineterminator="\n")
         w.writerow(["test", "length", "ops_per_cell", "ops", "cycles", "seconds", "instances",
-                    "detected", "coverage", "detected_per_1000_cycles", "pareto"]
+                    "detected", "coverage", "score", "pareto"]
                    + [f"coverage:{c}" for c in self.classes])
         for r in self.rows:
             w.writerow([r.label, r.length, r.ops_per_cell, r.ops, r.cycles, repr(float(r.seconds)),
-                        r.instances, r.detected, f"{r.coverage:.6f}", f"{r.per_kcycle:.6f}",
+                        r.instances, r.detected, f"{r.coverage:.6f}", f"{r.score:.6f}",
                         "yes" if r.pareto else "no"]
                        + ["" if r.classes.get(c) is None else f"{r.classes[c]:.6f}" for c in self.classes])
         return buf.getvalue()
@@ -169,8 +191,15 @@ def unique_labels(names: Sequence[str]) -> list[str]:
     return out
 
 
-def compare_results(results: Sequence, labels: Sequence[str] | None = None) -> Comparison:
-    """A comparison from grade results (one per test, all on one memory and one fault list)."""
+def compare_results(results: Sequence, labels: Sequence[str] | None = None, weights: dict | None = None,
+                    front_on: str = "score") -> Comparison:
+    """A comparison from grade results (one per test, all on one memory and one fault list).
+    ``weights``: class -> weight of the score (1 each by default); ``front_on``: ``score`` or
+    ``coverage``, the figure of the Pareto front."""
+    from ..grade.score import class_score
+
+    if front_on not in FRONT_ON:
+        raise InputError(f"the front is taken on {' or '.join(FRONT_ON)}, not {front_on!r}")
     results = list(results)
     if not results:
         raise InputError("nothing to compare: give at least one test")
@@ -187,9 +216,12 @@ def compare_results(results: Sequence, labels: Sequence[str] | None = None) -> C
         labels = unique_labels([r.test.name for r in results])
     elif len(labels) != len(results):
         raise ValueError("one label per result")
-    flags = pareto_flags([(r.cycles, _exact(r.total)) for r in results])
+    weights = {c: float((weights or {}).get(c, 1.0)) for c in classes}
+    scores = [class_score(r.classes, weights) for r in results]
+    measure = scores if front_on == "score" else [_exact(r.total) for r in results]
+    flags = pareto_flags([(r.cycles, m) for r, m in zip(results, measure)])
     rows = []
-    for i, (res, label, on_front) in enumerate(zip(results, labels, flags)):
+    for i, (res, label, on_front, sc) in enumerate(zip(results, labels, flags, scores)):
         t = res.test
         rows.append(Row(
             label=label,
@@ -205,10 +237,11 @@ def compare_results(results: Sequence, labels: Sequence[str] | None = None) -> C
             pareto=on_front,
             position=i,
             result=res,
+            exact_score=sc,
         ))
     js = first.to_json()
     return Comparison(tuple(rows), js.get("memory", {}), classes, counts, first.faults_spec,
-                      first.pairs_spec, memory_label(first.memory))
+                      first.pairs_spec, memory_label(first.memory), weights, front_on)
 
 
 def _exact(total) -> Fraction:
@@ -218,7 +251,8 @@ def _exact(total) -> Fraction:
 def compare_tests(tests: Sequence, mem, faults: str = "static", pairs: str = "neighbours",
                   retention=None, engine: str = "fast",
                   progress: Callable[[int, int, str], None] | None = None,
-                  labels: Sequence[str] | None = None, sort: str = "given") -> Comparison:
+                  labels: Sequence[str] | None = None, sort: str = "given", weights: dict | None = None,
+                  front_on: str = "score") -> Comparison:
     """Grade every test on ``mem`` and compare them.
 
     ``progress(done, n, label)`` reports how far the run is: ``done`` goes from 0 to ``n``
@@ -243,7 +277,7 @@ def compare_tests(tests: Sequence, mem, faults: str = "static", pairs: str = "ne
         results.append(grade(t, mem, faults=faults, pairs=pairs, engine=engine, progress=step, **kw))
     if progress:
         progress(len(tests), len(tests), "")
-    return compare_results(results, labels).sorted(sort)
+    return compare_results(results, labels, weights, front_on).sorted(sort)
 
 
 # ---- sorting --------------------------------------------------------------------------
@@ -264,8 +298,8 @@ def sort_rows(rows: Sequence[Row], key: str = DEFAULT_SORT) -> tuple[Row, ...]:
         out = sorted(rows, key=lambda r: (r.cycles, -r.exact_coverage, r.position))
     elif k == "coverage":
         out = sorted(rows, key=lambda r: (-r.exact_coverage, *tie(r)))
-    elif k == "yield":
-        out = sorted(rows, key=lambda r: (-Fraction(r.detected, max(1, r.cycles)), *tie(r)))
+    elif k == "score":
+        out = sorted(rows, key=lambda r: (-r.exact_score, *tie(r)))
     else:
         classes = {c.lower(): c for r in rows for c in r.classes}
         if k not in classes:

@@ -287,11 +287,7 @@ def html_report(result) -> str:
 def write_html_report(result, path, force: bool = False) -> None:
     """Write :func:`html_report` to ``path`` under a temporary name, then rename it into
     place; an existing file is refused unless ``force``."""
-    from pathlib import Path
+    from ..files import target_kind
 
-    from ..errors import OutputError
-
-    p = Path(path)
-    if p.exists() and not force:
-        raise OutputError(f"{p} exists; use --force to replace it")
-    write_file(p, html_report(result), force=force)
+    target_kind(path, force)
+    write_file(path, html_report(result), force=force)

@@ -118,9 +118,9 @@ def _tradeoff(axes, cmp: Comparison, cut: float | None):
     else:
         parts = [(axes[0], [r for r in rows if r.seconds <= cut]),
                  (axes[1], [r for r in rows if r.seconds > cut])]
-    ys_all = [100.0 * r.coverage for r in rows]
+    ys_all = [100.0 * cmp.value(r) for r in rows]
     ymin = max(0.0, 10 * math.floor((min(ys_all) - 6) / 10)) if ys_all else 0.0
-    front = sorted((r for r in rows if r.pareto), key=lambda r: (r.seconds, -r.coverage))
+    front = sorted((r for r in rows if r.pareto), key=lambda r: (r.seconds, -cmp.value(r)))
     clock = _clock_hz(cmp)
     tmax = max((r.seconds for r in rows), default=1.0) or 1.0
     unit, scale = time_unit(tmax if cut is None else cut)
@@ -138,10 +138,10 @@ def _tradeoff(axes, cmp: Comparison, cut: float | None):
         fx, fy = [], []
         if before:
             fx.append(lo)
-            fy.append(100.0 * max(r.coverage for r in before))
+            fy.append(100.0 * max(cmp.value(r) for r in before))
         for r in inside:
             fx.append(r.seconds)
-            fy.append(100.0 * r.coverage)
+            fy.append(100.0 * cmp.value(r))
         if fx:
             fx.append(hi)
             fy.append(fy[-1])
@@ -149,8 +149,8 @@ def _tradeoff(axes, cmp: Comparison, cut: float | None):
             ax.step(fx, fy, where="post", color=BLUE, linewidth=1.6, linestyle=(0, (5, 2)), zorder=2,
                     label="Pareto front (best coverage within a time budget)")
         ax.axhline(100, color=MUTED, linewidth=0.7, linestyle=":", zorder=1)
-        off = [(r.seconds, 100.0 * r.coverage) for r in part if not r.pareto]
-        on = [(r.seconds, 100.0 * r.coverage) for r in part if r.pareto]
+        off = [(r.seconds, 100.0 * cmp.value(r)) for r in part if not r.pareto]
+        on = [(r.seconds, 100.0 * cmp.value(r)) for r in part if r.pareto]
         if off:
             ax.scatter(*zip(*off), marker="s", s=38, facecolor="white", edgecolor=VERMILLION,
                        linewidth=1.5, zorder=3, label="dominated (another test is faster or better, and no worse)")
@@ -176,8 +176,8 @@ def _tradeoff(axes, cmp: Comparison, cut: float | None):
         groups.append((ax, part))
 
     main_ax = axes[0]
-    main_ax.set_title("Coverage against test time")
-    main_ax.set_ylabel("total fault coverage (%)")
+    main_ax.set_title("Score against test time" if cmp.front_on == "score" else "Coverage against test time")
+    main_ax.set_ylabel("class-weighted score (%)" if cmp.front_on == "score" else "total fault coverage (%)")
     if cut is not None:
         main_ax.set_xlabel(f"test time (axis broken after {_short_time(cut, 3)})")
         _break_marks(axes[0], axes[1])
@@ -219,7 +219,7 @@ def _place_labels(groups, renderer, cmp: Comparison) -> None:
     items = []          # (axes, row, data point, display point)
     for ax, part in groups:
         for r in part:
-            xy = (r.seconds, 100.0 * r.coverage)
+            xy = (r.seconds, 100.0 * cmp.value(r))
             items.append((ax, r, xy, ax.transData.transform(np.array([xy], dtype=float))[0]))
     if not items:
         return
@@ -308,14 +308,14 @@ def _heat(fig, ax, cmp: Comparison) -> None:
     from matplotlib.patches import Rectangle
 
     rows = list(cmp.rows)
-    cols = list(cmp.classes) + ["total"]
+    cols = list(cmp.classes) + ["score"]
     data = np.full((len(rows), len(cols)), np.nan)
     for i, r in enumerate(rows):
         for j, c in enumerate(cmp.classes):
             v = r.classes.get(c)
             if v is not None:
                 data[i, j] = 100.0 * v
-        data[i, -1] = 100.0 * r.coverage
+        data[i, -1] = 100.0 * r.score
     cmap = colormaps[HEAT_MAP].with_extremes(bad="white")
     im = ax.imshow(np.ma.masked_invalid(data), cmap=cmap, vmin=0, vmax=100, aspect="auto",
                    interpolation="nearest")

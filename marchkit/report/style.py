@@ -54,6 +54,10 @@ def rc() -> dict:
         "svg.fonttype": "none",
         "svg.hashsalt": "marchkit",
         "figure.dpi": 100,
+        # names are the user's text: a '$' in a test or memory name must not start math
+        # (mathtext would fail on "a$\\frac{$ b" after all the grading)
+        "text.parse_math": False,
+        "text.usetex": False,
     }
 
 
