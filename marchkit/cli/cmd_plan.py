@@ -87,7 +87,7 @@ def run(args) -> int:
     if args.json:
         print(json.dumps(data, indent=2, ensure_ascii=False))
         for w in written:
-            console(stderr=True).print(f"wrote {w}")
+            console(stderr=True).print(f"wrote {w}", markup=False)
         return status
     con = console()
     if not sys.stdout.isatty():      # tables fit the width asked for (80 columns by default)
@@ -98,7 +98,7 @@ def run(args) -> int:
         con = Console(highlight=False, soft_wrap=False, width=int(os.environ.get("COLUMNS", "0") or 0) or 80)
     show_plan(data, con)
     for w in written:
-        con.print(f"wrote {w}")
+        con.print(f"wrote {w}", markup=False)
     return status
 
 
@@ -120,6 +120,7 @@ def _geometry(m: dict) -> str:
 
 
 def show_plan(data: dict, con) -> None:
+    from rich.markup import escape as e
     from rich.table import Table
 
     from ..report.compare import format_frequency
@@ -128,10 +129,10 @@ def show_plan(data: dict, con) -> None:
     types = data["types"]
     groups = data["groups"]
     domains = sorted({i["domain"] for i in inst})
-    con.print(f"[bold]{data['soc']}[/bold]: {len(inst)} memories of {len({t['type'] for t in types})} "
+    con.print(f"[bold]{e(data['soc'])}[/bold]: {len(inst)} memories of {len({t['type'] for t in types})} "
               f"types, {len(groups)} BIST groups, {len(domains)} clock domain{'s' if len(domains) != 1 else ''}")
     s = data["schedule"]
-    con.print(f"faults {data['faults']}   pairs {data['pairs']}   power budget {fmt_w(s['budget_w'])}")
+    con.print(f"faults {e(data['faults'])}   pairs {e(data['pairs'])}   power budget {fmt_w(s['budget_w'])}")
     g = data["graded"]
     if g["computed"]:
         con.print(f"graded {g['jobs']} test × memory pairs: {g['computed']} on {g['workers']}, "
@@ -140,13 +141,15 @@ def show_plan(data: dict, con) -> None:
         con.print(f"graded {g['jobs']} test × memory pairs: all from the cache ({g['seconds']:.3g} s)")
 
     t = Table(show_edge=False, pad_edge=False, title="test per memory type", title_justify="left",
-              title_style="bold")
+              title_style="bold", caption_justify="left",
+              caption="n: instances of the type; each: test time of one instance; power: drawn while "
+                      "its test runs; m8: column mux 8")
     for col, just in (("type", "left"), ("memory", "left"), ("clock", "right"), ("n", "right"),
                       ("test", "left"), ("each", "right"), ("power", "right")):
         t.add_column(col, justify=just, no_wrap=True)
     for ty in types:
-        t.add_row(ty["type"], _geometry(ty["memory"]), format_frequency(ty["clock_hz"]).replace(" ", ""),
-                  str(ty["instances"]), (ty["test"] or "—") + ("" if ty["meets"] else " [bold red]![/bold red]"),
+        t.add_row(e(ty["type"]), _geometry(ty["memory"]), format_frequency(ty["clock_hz"]).replace(" ", ""),
+                  str(ty["instances"]), e(ty["test"] or "—") + ("" if ty["meets"] else " [bold red]![/bold red]"),
                   fmt_s(ty["seconds"]) if ty["seconds"] else "—", fmt_w(ty["power_w"]))
     con.print(t)
     short = [ty for ty in types if not ty["meets"]]
@@ -155,8 +158,8 @@ def show_plan(data: dict, con) -> None:
         con.print("(these memories would ship less tested than required)")
         for ty in short:
             for u in ty["unmet"]:
-                con.print(f"  {ty['type']} at {format_frequency(ty['clock_hz'])}: {u['class']} ≥ "
-                          f"{u['required']:g} % — best {_pct(u['best'])} % ({u['best_test']})")
+                con.print(f"  {e(ty['type'])} at {format_frequency(ty['clock_hz'])}: {u['class']} ≥ "
+                          f"{u['required']:g} % — best {_pct(u['best'])} % ({e(str(u['best_test']))})")
     status = s["status"]
     how = ("optimal" if status == "optimal" else
            f"feasible; lower bound {fmt_s(s['lower_bound_s'])}, gap {100 * s['gap']:.1f} %")
@@ -172,7 +175,7 @@ def show_plan(data: dict, con) -> None:
                       ("start", "right"), ("end", "right")):
         gt.add_column(col, justify=just, no_wrap=True)
     for grp in sorted(groups, key=lambda x: (-x["end_s"], x["group"])):
-        gt.add_row(grp["group"], grp["domain"], str(grp["instances"]), fmt_s(grp["busy_s"]),
+        gt.add_row(e(grp["group"]), e(grp["domain"]), str(grp["instances"]), fmt_s(grp["busy_s"]),
                    fmt_s(grp["start_s"]), fmt_s(grp["end_s"]))
     con.print(gt)
     order = sorted(groups, key=lambda x: (-x["end_s"], x["group"]))
@@ -180,13 +183,13 @@ def show_plan(data: dict, con) -> None:
         if grp["instances"] < 2:
             continue
         rows = sorted(by_group[grp["group"]], key=lambda r: (r["start_s"], r["name"]))
-        tt = Table(show_edge=False, pad_edge=False, title=f"group {grp['group']} ({grp['domain']})",
+        tt = Table(show_edge=False, pad_edge=False, title=f"group {e(grp['group'])} ({e(grp['domain'])})",
                    title_justify="left", title_style="bold")
         for col, just in (("memory", "left"), ("type", "left"), ("test", "left"), ("start", "right"),
                           ("end", "right"), ("power", "right")):
             tt.add_column(col, justify=just, no_wrap=True, overflow="ellipsis")
         for r in rows:
-            tt.add_row(r["name"], r["type"], r["test"] + ("" if r["meets"] else " [red]![/red]"),
+            tt.add_row(e(r["name"]), e(r["type"]), e(r["test"]) + ("" if r["meets"] else " [red]![/red]"),
                        fmt_s(r["start_s"]), fmt_s(r["end_s"]), fmt_w(r["power_w"]))
         con.print(tt)
     singles = [by_group[g["group"]][0] for g in order if g["instances"] == 1]
@@ -197,8 +200,8 @@ def show_plan(data: dict, con) -> None:
                           ("end", "right"), ("power", "right")):
             tt.add_column(col, justify=just, no_wrap=True, overflow="ellipsis")
         for r in singles:
-            tt.add_row(r["name"], "" if r["group"] == r["name"] else r["group"],
-                       r["test"] + ("" if r["meets"] else " [red]![/red]"),
+            tt.add_row(e(r["name"]), "" if r["group"] == r["name"] else e(r["group"]),
+                       e(r["test"]) + ("" if r["meets"] else " [red]![/red]"),
                        fmt_s(r["start_s"]), fmt_s(r["end_s"]), fmt_w(r["power_w"]))
         con.print(tt)
     if any(not r["meets"] for r in inst):

@@ -84,11 +84,14 @@ def bitmap_figure(bm, title: str = "", plan=None):
         ttl = title or "fail bitmap"
         import textwrap
 
-        sub = textwrap.fill(f"{rows} rows × {cols} columns — {bm.kind}: {bm.detail}", 80)
-        ax.set_title(f"{textwrap.shorten(ttl, 80)}\n{sub}", loc="left")
-        if pr > 1 or pc > 1:
-            ax.text(1.0, -0.08, f"each pixel: {pr} row(s) × {pc} column(s)", transform=ax.transAxes,
-                    ha="right", va="top", fontsize=7, color=MUTED)
+        binned = f"; each pixel {pr:,} row(s) × {pc:,} column(s)" if pr > 1 or pc > 1 else ""
+        sub = textwrap.fill(f"{rows:,} rows × {cols:,} columns{binned} — {bm.kind}: {bm.detail}", 80)
+        ax.set_title(f"{textwrap.fill(ttl, 80, max_lines=2, placeholder=' …')}\n{sub}", loc="left")
+        from matplotlib.ticker import FuncFormatter
+
+        whole = FuncFormatter(lambda v, _pos: f"{int(round(v)):,}")     # 2,000,000, never an offset 1e6
+        ax.xaxis.set_major_formatter(whole)
+        ax.yaxis.set_major_formatter(whole)
         ax.legend(handles=handles, loc="upper left", bbox_to_anchor=(1.01, 1.0))
     return fig
 

@@ -1,0 +1,114 @@
+"""Hostile and readability checks of the newer commands (generate, bist, diagnose, repair,
+plan) from the outside: exit status, the printed text, nothing half-written.  Each test names
+the fact it rests on; facts of the command line are common practice, no source."""
+
+from __future__ import annotations
+
+import shutil
+from pathlib import Path
+
+import pytest
+
+ROOT = Path(__file__).resolve().parents[1]
+EX = ROOT / "examples"
+
+
+@pytest.fixture
+def die12(tmp_path):
+    """The example memory and fail log, copied so tests may rename them."""
+    mem = tmp_path / "kestrel_l1_sram.toml"
+    shutil.copy(EX / "kestrel_l1_sram.toml", mem)
+    log = tmp_path / "kestrel_die12_fails.csv"
+    shutil.copy(EX / "kestrel_die12_fails.csv", log)
+    return mem, log
+
+
+# ---- names that look like console markup are printed as written -------------------------------
+
+def test_diagnose_prints_markup_like_names_literally(die12, cli, monkeypatch):
+    # common practice, no source: a memory may be named anything; "[/]" once crashed the console
+    monkeypatch.setenv("COLUMNS", "80")
+    mem, log = die12
+    mem.write_text(mem.read_text().replace('name = "kestrel_l1_sram"', 'name = "[/]kestrel[bold]"'))
+    code, out, err = cli("diagnose", "March C-", "--memory", str(mem), "--fails", str(log), "--top", "1",
+                         "--no-hint")
+    assert code == 0, err
+    assert "Traceback" not in err
+    assert "[/]kestrel[bold]: 1024 × 16 bits" in out
+    # the member notation is explained under the table
+    assert "wW.bB is word W (decimal) bit B" in out and "a= the aggressor, v= the victim" in out
+
+
+def test_repair_prints_markup_like_file_name_literally(tmp_path, cli):
+    bm = tmp_path / "die[red]31.csv"
+    shutil.copy(EX / "kestrel_die31_bitmap.csv", bm)
+    code, out, err = cli("repair", "--bitmap", str(bm), "--rows", "256", "--cols", "64",
+                         "--spare-rows", "4", "--spare-cols", "4")
+    assert code == 0, err
+    assert "die[red]31.csv: 187 failing cells in a 256 × 64 array" in out
+
+
+# ---- limits before work ----------------------------------------------------------------------
+
+def test_repair_refuses_an_absurd_array_side(tmp_path, cli):
+    # a 10^11-row bitmap once reached numpy and died with a 745 GiB allocation traceback
+    pic = tmp_path / "huge.png"
+    code, out, err = cli("repair", "--bitmap", str(EX / "kestrel_die31_bitmap.csv"), "--rows", "99999999999",
+                         "--cols", "64", "--spare-rows", "4", "--spare-cols", "4", "--picture", str(pic))
+    assert code == 2
+    assert "error: --rows 99,999,999,999 --cols 64: an array side is at most 16,777,216" in err
+    assert "Traceback" not in err and out == ""
+    assert not pic.exists()
+
+
+def test_repair_picture_title_tells_spares_used_of_available(tmp_path, cli):
+    # Kuo & Fuchs (IEEE D&T 1987): the die-31 bitmap (one row, one column, five single cells)
+    # needs 2 spare rows and 4 spare columns; the title said "with 4+4 spares" before
+    pic = tmp_path / "r.svg"
+    code, out, err = cli("repair", "--bitmap", str(EX / "kestrel_die31_bitmap.csv"), "--rows", "256",
+                         "--cols", "9999999", "--spare-rows", "4", "--spare-cols", "4", "--picture", str(pic))
+    assert code == 0, err
+    assert f"picture written to {pic}" in out
+    svg = pic.read_text()
+    assert "repairable: uses 2 of 4 spare rows, 4 of 4 columns" in svg
+    assert str(EX) not in svg                     # the file's name, not its whole path
+    assert "each pixel 1 row(s) × 19,532 column(s)" in svg     # in the subtitle, not over the axis label
+    assert "2,000,000" in svg and "1e6" not in svg
+
+
+# ---- bist --force replaces only a controller directory --------------------------------------
+
+def test_bist_force_keeps_a_directory_it_did_not_write(tmp_path, cli, monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    (tmp_path / "work").mkdir()
+    (tmp_path / "work" / "notes.txt").write_text("mine")
+    code, out, err = cli("bist", "March C-", "--memory", "demo", "-o", "work", "--force")
+    assert code == 2
+    assert "error: work holds files bist did not write (notes.txt)" in err
+    assert (tmp_path / "work" / "notes.txt").read_text() == "mine"
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["work"]     # no temporary left over
+
+
+@pytest.mark.parametrize("target, message", [
+    ("", "error: give the output directory a name (-o DIR)"),
+    (".", "error: . is the working directory or holds it; --force will not replace it"),
+    ("..", "error: .. is the working directory or holds it; --force will not replace it"),
+])
+def test_bist_force_never_replaces_the_working_directory(tmp_path, cli, monkeypatch, target, message):
+    work = tmp_path / "w"
+    work.mkdir()
+    monkeypatch.chdir(work)
+    (work / "keep.v").write_text("// mine\n")
+    code, out, err = cli("bist", "March C-", "--memory", "demo", "-o", target, "--force")
+    assert code == 2
+    assert message in err and "Traceback" not in err
+    assert sorted(p.name for p in work.iterdir()) == ["keep.v"]
+
+
+def test_bist_force_replaces_its_own_directory(tmp_path, cli, monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    assert cli("bist", "March C-", "--memory", "demo", "-o", "ctl")[0] == 0
+    (tmp_path / "ctl" / "sim.vvp").write_text("simulation output")
+    code, out, err = cli("bist", "March C-", "--memory", "demo", "-o", "ctl", "--force")
+    assert code == 0, err
+    assert sorted(p.name for p in (tmp_path / "ctl").iterdir()) == ["mbist.v", "mbist_tb.v"]
