@@ -112,3 +112,24 @@ def test_bist_force_replaces_its_own_directory(tmp_path, cli, monkeypatch):
     code, out, err = cli("bist", "March C-", "--memory", "demo", "-o", "ctl", "--force")
     assert code == 0, err
     assert sorted(p.name for p in (tmp_path / "ctl").iterdir()) == ["mbist.v", "mbist_tb.v"]
+
+
+# ---- fail logs and bitmaps that are not text files ------------------------------------------
+
+@pytest.mark.parametrize("command", ["diagnose", "repair"])
+def test_fail_inputs_that_are_not_text_files(tmp_path, cli, command):
+    # common practice, no source: one line naming the file and the reason, exit status 2
+    binary = tmp_path / "log.csv"
+    binary.write_bytes(b"\xff\xfe\x00cycle")
+    mem = str(EX / "kestrel_l1_sram.toml")
+    what, opt = ("fail log", "--fails") if command == "diagnose" else ("bitmap file", "--bitmap")
+    tail = (["March C-", "--memory", mem] if command == "diagnose"
+            else ["--rows", "4", "--cols", "4", "--spare-rows", "1", "--spare-cols", "1"])
+    for path, reason in ((binary, "is not text: byte 0xff at offset 0 is not UTF-8"),
+                         (tmp_path, ": it is a directory"),
+                         (Path("/dev/zero"), ": not a file or a pipe")):
+        code, out, err = cli(command, *tail, opt, str(path))
+        assert code == 2, (path, err)
+        assert err.startswith("error: ") and reason in err and what in err
+        assert "Errno" not in err and "codec" not in err and "Traceback" not in err
+        assert len(err.strip().splitlines()) == 1
