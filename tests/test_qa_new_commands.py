@@ -133,3 +133,51 @@ def test_fail_inputs_that_are_not_text_files(tmp_path, cli, command):
         assert err.startswith("error: ") and reason in err and what in err
         assert "Errno" not in err and "codec" not in err and "Traceback" not in err
         assert len(err.strip().splitlines()) == 1
+
+
+# ---- Ctrl-C with a local Dask cluster --------------------------------------------------------
+
+def test_ctrl_c_reaches_only_the_main_process(tmp_path):
+    # POSIX: a terminal's Ctrl-C sends SIGINT to the whole foreground process group; the local
+    # cluster's workers used to print one KeyboardInterrupt traceback each
+    import os
+    import signal
+    import subprocess
+    import sys
+
+    script = (
+        "import sys, time\n"
+        "from marchkit.cli import main\n"
+        "from marchkit.errors import MarchkitError\n"
+        "from marchkit.plan.cluster import open_client\n"
+        "try:\n"
+        "    with open_client(workers=1) as c:\n"
+        "        assert c.submit(sum, [1, 2]).result() == 3\n"
+        "        print('ready', flush=True)\n"
+        "        time.sleep(60)\n"
+        "except KeyboardInterrupt:\n"
+        "    print('interrupted', file=sys.stderr)\n"
+        "    sys.exit(130)\n"
+    )
+    env = dict(os.environ, PYTHONPATH=str(ROOT))
+    p = subprocess.Popen([sys.executable, "-c", script], stdout=subprocess.PIPE, stderr=subprocess.PIPE,
+                         env=env, cwd=tmp_path, start_new_session=True, text=True)
+    try:
+        assert p.stdout.readline().strip() == "ready"
+        os.killpg(p.pid, signal.SIGINT)
+        out, err = p.communicate(timeout=60)
+    finally:
+        if p.poll() is None:
+            os.killpg(p.pid, signal.SIGKILL)
+    assert p.returncode == 130
+    assert err.strip() == "interrupted", err
+
+
+def test_generate_counts_in_words(cli, tmp_path):
+    # common practice, no source: "1 node", not "1 nodes".  SAF alone needs 4n: every cell
+    # must be written and read with both values (van de Goor, Testing Semiconductor Memories,
+    # 1991, the stuck-at detection condition), and one element ⇕(w0,r0,w1,r1) does that
+    code, out, err = cli("generate", "--faults", "SAF", "--words", "8", "--workers", "0")
+    assert code == 0, err
+    assert "(1 node, 2 fault keys)" in out
+    assert "{⇕(w0,r0,w1,r1)}" in out

@@ -141,13 +141,13 @@ def run(args) -> int:
     con.print(f"[bold]{e(t.name)}[/bold]  {t.length_text}   {format_notation(t)}")
     if res.origin == "like":
         con.print(f"shortened {e(args.like)} to {res.length}n, keeping every detection "
-                  f"({res.nodes} candidate tests graded); not proven minimal")
+                  f"({_n(res.nodes, 'candidate test')} graded); not proven minimal")
     elif res.proven_minimal:
         con.print(f"proven minimal: every test shorter than {res.length}n in the search space was ruled out "
-                  f"({res.nodes:,} nodes, {res.keys} fault keys)")
+                  f"({_n(res.nodes, 'node')}, {_n(res.keys, 'fault key')})")
     else:
         why = f" — {res.stopped}" if res.stopped else ""
-        con.print(f"not proven minimal: lower bound {res.lower_bound}n reached{why} ({res.nodes:,} nodes)")
+        con.print(f"not proven minimal: lower bound {res.lower_bound}n reached{why} ({_n(res.nodes, 'node')})")
     g = res.grade
     con.print(f"confirmed on the memory: {g.total.detected:,} of {g.total.instances:,} fault instances detected "
               f"({100 * g.total.coverage:.2f} %)")
@@ -164,3 +164,8 @@ def run(args) -> int:
     if args.output:
         con.print(f"written to {args.output}", markup=False)
     return 0
+
+
+def _n(count: int, noun: str) -> str:
+    """``1 node``, ``4,549 nodes``."""
+    return f"{count:,} {noun}{'' if count == 1 else 's'}"
