@@ -181,3 +181,71 @@ def test_generate_counts_in_words(cli, tmp_path):
     assert code == 0, err
     assert "(1 node, 2 fault keys)" in out
     assert "{⇕(w0,r0,w1,r1)}" in out
+
+
+# ---- names from the user's files in pictures and one-line places ----------------------------
+
+TINY_SOC = """\
+[soc]
+name = "NAME"
+faults = "static"
+tests = ["MATS++", "March C-"]
+
+[require]
+SF = 100
+
+[power]
+budget = "24mW"
+
+[domains]
+core = "100MHz"
+
+[types.buf]
+words = 64
+bits = 8
+power = "5mW"
+
+[[instances]]
+name = "buf{}"
+count = 2
+type = "buf"
+domain = "core"
+group = "GROUP"
+"""
+
+
+def test_plan_names_with_dollars_and_markup(tmp_path, cli, monkeypatch):
+    # matplotlib reads $…$ as a TeX formula and rich reads […] as markup: both used to crash
+    # on names taken from the SoC file
+    monkeypatch.setenv("MARCHKIT_CACHE", str(tmp_path / "cache"))
+    monkeypatch.setenv("COLUMNS", "80")
+    soc = tmp_path / "tiny.toml"
+    soc.write_text(TINY_SOC.replace("NAME", r"Ouzel $\\frac{$ [/] test chip").replace("GROUP", "g$_$[/b]"))
+    chart = tmp_path / "plan.svg"
+    code, out, err = cli("plan", str(soc), "--workers", "1", "--gantt", str(chart))
+    assert code == 0, err
+    assert "Traceback" not in err
+    assert r"Ouzel $\frac{$ [/] test chip: 2 memories of 1 type, 1 BIST group, 1 clock domain" in out
+    assert "g$_$[/b]" in out
+    assert "n: instances of the type; each: test time of one instance" in out
+    assert max(len(line) for line in out.splitlines()) <= 80
+    svg = chart.read_text()
+    assert r"Ouzel $\frac{$ [/] test chip: 2 memories in 1 BIST group" in svg
+
+
+def test_plan_refuses_a_name_on_two_lines(tmp_path, cli):
+    soc = tmp_path / "two.toml"
+    soc.write_text(TINY_SOC.replace("NAME", r"two\nlines").replace("GROUP", "g"))
+    code, out, err = cli("plan", str(soc), "--workers", "1")
+    assert code == 2 and out == ""
+    assert f"{soc}:2:8: error: name must be one line of text, without line breaks" in err
+
+
+def test_repair_picture_of_a_file_named_like_a_formula(tmp_path, cli):
+    bm = tmp_path / "die$\\frac$.csv"
+    shutil.copy(EX / "kestrel_die31_bitmap.csv", bm)
+    pic = tmp_path / "d.svg"
+    code, out, err = cli("repair", "--bitmap", str(bm), "--rows", "256", "--cols", "64",
+                         "--spare-rows", "4", "--spare-cols", "4", "--picture", str(pic))
+    assert code == 0, err
+    assert "die$\\frac$.csv: repairable: uses 2 of 4 spare rows" in pic.read_text()

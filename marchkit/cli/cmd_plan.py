@@ -129,8 +129,10 @@ def show_plan(data: dict, con) -> None:
     types = data["types"]
     groups = data["groups"]
     domains = sorted({i["domain"] for i in inst})
-    con.print(f"[bold]{e(data['soc'])}[/bold]: {len(inst)} memories of {len({t['type'] for t in types})} "
-              f"types, {len(groups)} BIST groups, {len(domains)} clock domain{'s' if len(domains) != 1 else ''}")
+    ntypes = len({t['type'] for t in types})
+    con.print(f"[bold]{e(data['soc'])}[/bold]: {len(inst)} memor{'y' if len(inst) == 1 else 'ies'} of {ntypes} "
+              f"type{'' if ntypes == 1 else 's'}, {len(groups)} BIST group{'' if len(groups) == 1 else 's'}, "
+              f"{len(domains)} clock domain{'s' if len(domains) != 1 else ''}")
     s = data["schedule"]
     con.print(f"faults {e(data['faults'])}   pairs {e(data['pairs'])}   power budget {fmt_w(s['budget_w'])}")
     g = data["graded"]
@@ -141,9 +143,7 @@ def show_plan(data: dict, con) -> None:
         con.print(f"graded {g['jobs']} test × memory pairs: all from the cache ({g['seconds']:.3g} s)")
 
     t = Table(show_edge=False, pad_edge=False, title="test per memory type", title_justify="left",
-              title_style="bold", caption_justify="left",
-              caption="n: instances of the type; each: test time of one instance; power: drawn while "
-                      "its test runs; m8: column mux 8")
+              title_style="bold")
     for col, just in (("type", "left"), ("memory", "left"), ("clock", "right"), ("n", "right"),
                       ("test", "left"), ("each", "right"), ("power", "right")):
         t.add_column(col, justify=just, no_wrap=True)
@@ -152,6 +152,8 @@ def show_plan(data: dict, con) -> None:
                   str(ty["instances"]), e(ty["test"] or "—") + ("" if ty["meets"] else " [bold red]![/bold red]"),
                   fmt_s(ty["seconds"]) if ty["seconds"] else "—", fmt_w(ty["power_w"]))
     con.print(t)
+    con.print("[dim]n: instances of the type; each: test time of one instance; power: drawn while its "
+              "test runs; m8: column mux 8[/dim]")
     short = [ty for ty in types if not ty["meets"]]
     if short:
         con.print("[bold red]requirements no candidate meets[/bold red]")

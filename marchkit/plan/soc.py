@@ -267,6 +267,10 @@ class _Reader:
         ok = isinstance(v, typ) and not isinstance(v, bool)
         if not ok:
             raise self.fail(f"{key} must be {what} (got {type(v).__name__} {v!r})", self.pos.value(path + (key,)))
+        if isinstance(v, str) and any(ord(ch) < 32 or ord(ch) == 127 for ch in v):
+            # a name reaches one-line places: terminal tables, the chart title, the report
+            raise self.fail(f"{key} must be one line of text, without line breaks or control characters "
+                            f"(got {v!r})", self.pos.value(path + (key,)))
         return v
 
     def value_error(self, path: tuple, key: str, err: Exception, item: str | None = None) -> SocFileError:

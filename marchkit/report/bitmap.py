@@ -44,7 +44,7 @@ def bitmap_figure(bm, title: str = "", plan=None):
             img[:, x // pc] = 1
     if bm.count:
         img[bm.r // pr, bm.c // pc] = 2
-    with matplotlib.rc_context(rc()):
+    with matplotlib.rc_context(_rc()):
         aspect = rows / max(1, cols)
         w = 7.2
         h = min(9.0, max(2.8, w * aspect * 0.9 + 1.2))
@@ -104,6 +104,12 @@ def write_bitmap_picture(bm, path, title: str = "", plan=None, force: bool = Fal
 
     plot_format(path)
     fig = bitmap_figure(bm, title, plan)
-    with matplotlib.rc_context(rc()):
+    with matplotlib.rc_context(_rc()):
         save_figure(fig, path, force=force)
     return fig
+
+
+def _rc() -> dict:
+    """The house style, with ``$`` taken literally: names come from the user's files, and a
+    name such as ``d$\\frac$.csv`` must not be read as a TeX formula (it used to crash)."""
+    return {**rc(), "text.parse_math": False}
