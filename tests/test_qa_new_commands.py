@@ -249,3 +249,15 @@ def test_repair_picture_of_a_file_named_like_a_formula(tmp_path, cli):
                          "--spare-rows", "4", "--spare-cols", "4", "--picture", str(pic))
     assert code == 0, err
     assert "die$\\frac$.csv: repairable: uses 2 of 4 spare rows" in pic.read_text()
+
+
+def test_bist_summary_speaks_like_the_other_commands(tmp_path, cli, monkeypatch):
+    # grade, compare and plan write "51.2 µs" and "10,240 cycles"; bist wrote "51.2us", "10240".
+    # March C- is 10n (van de Goor 1991): 10 × 1024 words = 10,240 operations, one per cycle
+    monkeypatch.chdir(tmp_path)
+    code, out, err = cli("bist", "March C-", "--memory", "demo", "-o", "ctl")
+    assert code == 0, err
+    assert "test: 10,240 cycles, 10,240 operations, 51.2 µs at 200 MHz (1 background run)" in out
+    code, out, err = cli("bist", "March C-", "--memory", "demo", "--program-only", "-o", "p.hex")
+    assert code == 0, err
+    assert "for March C- on kestrel_l1_sram 1024 × 16 bits, 10,240 cycles" in out
