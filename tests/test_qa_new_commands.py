@@ -261,3 +261,30 @@ def test_bist_summary_speaks_like_the_other_commands(tmp_path, cli, monkeypatch)
     code, out, err = cli("bist", "March C-", "--memory", "demo", "--program-only", "-o", "p.hex")
     assert code == 0, err
     assert "for March C- on kestrel_l1_sram 1024 × 16 bits, 10,240 cycles" in out
+
+
+def test_plan_generate_candidate_and_narrow_console(tmp_path, cli, monkeypatch):
+    # issue 15 lists "generate" among the candidate tests; the command line used to refuse it
+    # as missing from "this build".  SF alone needs a 4n test (every cell written and read
+    # with both values; van de Goor 1991), shorter than March C- (10n), so it is chosen.
+    # On a 60-column console a long type name folds; the numbers stay whole.
+    from marchkit.plan.planner import check_generate
+    from marchkit.plan.soc import SocFileError, read_soc
+
+    monkeypatch.setenv("MARCHKIT_CACHE", str(tmp_path / "cache"))
+    monkeypatch.setenv("COLUMNS", "60")
+    text = (TINY_SOC.replace("NAME", "Ouzel").replace("GROUP", "g")
+            .replace('tests = ["MATS++", "March C-"]', 'tests = ["generate", "March C-"]')
+            .replace("types.buf", "types.line_buffer_with_a_very_long_name")
+            .replace('type = "buf"', 'type = "line_buffer_with_a_very_long_name"'))
+    soc = tmp_path / "gen.toml"
+    soc.write_text(text)
+    with pytest.raises(SocFileError, match="needs the test generator"):
+        check_generate(read_soc(str(soc)), None)          # the library still needs one passed in
+    code, out, err = cli("plan", str(soc), "--workers", "1")
+    assert code == 0, err
+    assert "Generated" in out and "4n-" in out      # the generated name folds in its column
+    assert max(len(line) for line in out.splitlines()) <= 60
+    # 4 operations × 64 words at 100 MHz = 2.56 µs per memory, two memories one after the other
+    assert "2.56 µs" in out and "5 mW" in out and "100MHz" in out
+    assert "total test time 5.12 µs" in out

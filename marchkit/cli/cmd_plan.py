@@ -68,9 +68,9 @@ def run(args) -> int:
         progress = None
     if prog:
         with prog:
-            plan = make_plan(soc, connect=connect, progress=progress)
+            plan = make_plan(soc, connect=connect, progress=progress, generator=generate_candidates)
     else:
-        plan = make_plan(soc, connect=connect)
+        plan = make_plan(soc, connect=connect, generator=generate_candidates)
     data = plan.to_json()
     written = []
     if args.gantt:
@@ -100,6 +100,32 @@ def run(args) -> int:
     for w in written:
         con.print(f"wrote {w}", markup=False)
     return status
+
+
+GENERATE_TIME_LIMIT_S = 60      # per memory type: the best test found by then, proven minimal or not
+
+
+def generate_candidates(soc, variants, client) -> dict:
+    """The "generate" candidate: per memory type that lists it, the shortest test found by
+    ``marchkit generate`` for the classes the type must cover (its ``require`` table), on the
+    type's memory, searched on the plan's Dask client.  The plan then grades it like any
+    other candidate, so a class the generator does not search (SOF, DRF) is still checked."""
+    from ..errors import InputError
+    from ..generate import GenerateError, generate
+
+    out: dict = {}
+    for v in variants.values():
+        t = v.type
+        if t.name in out or not any(soc.candidates[spec].is_generate for spec in soc.type_tests(t)):
+            continue
+        classes = [c for c, p in t.require.items() if p > 0]
+        try:
+            res = generate(",".join(classes) if classes else soc.faults, v.memory, soc.pairs, soc.retention,
+                           time_limit=GENERATE_TIME_LIMIT_S, executor=client)
+        except GenerateError as e:
+            raise InputError(f"memory type {t.name!r}: generate: {e}") from None
+        out[t.name] = [res.test]
+    return out
 
 
 def fmt_s(seconds: float) -> str:
@@ -151,6 +177,7 @@ def show_plan(data: dict, con) -> None:
         t.add_row(e(ty["type"]), _geometry(ty["memory"]), format_frequency(ty["clock_hz"]).replace(" ", ""),
                   str(ty["instances"]), e(ty["test"] or "—") + ("" if ty["meets"] else " [bold red]![/bold red]"),
                   fmt_s(ty["seconds"]) if ty["seconds"] else "—", fmt_w(ty["power_w"]))
+    _keep_numbers(t, con)
     con.print(t)
     con.print("[dim]n: instances of the type; each: test time of one instance; power: drawn while its "
               "test runs; m8: column mux 8[/dim]")
@@ -179,6 +206,7 @@ def show_plan(data: dict, con) -> None:
     for grp in sorted(groups, key=lambda x: (-x["end_s"], x["group"])):
         gt.add_row(e(grp["group"]), e(grp["domain"]), str(grp["instances"]), fmt_s(grp["busy_s"]),
                    fmt_s(grp["start_s"]), fmt_s(grp["end_s"]))
+    _keep_numbers(gt, con)
     con.print(gt)
     order = sorted(groups, key=lambda x: (-x["end_s"], x["group"]))
     for grp in order:
@@ -193,6 +221,7 @@ def show_plan(data: dict, con) -> None:
         for r in rows:
             tt.add_row(e(r["name"]), e(r["type"]), e(r["test"]) + ("" if r["meets"] else " [red]![/red]"),
                        fmt_s(r["start_s"]), fmt_s(r["end_s"]), fmt_w(r["power_w"]))
+        _keep_numbers(tt, con)
         con.print(tt)
     singles = [by_group[g["group"]][0] for g in order if g["instances"] == 1]
     if singles:
@@ -205,6 +234,7 @@ def show_plan(data: dict, con) -> None:
             tt.add_row(e(r["name"]), "" if r["group"] == r["name"] else e(r["group"]),
                        e(r["test"]) + ("" if r["meets"] else " [red]![/red]"),
                        fmt_s(r["start_s"]), fmt_s(r["end_s"]), fmt_w(r["power_w"]))
+        _keep_numbers(tt, con)
         con.print(tt)
     if any(not r["meets"] for r in inst):
         con.print("[red]![/red] a requirement of this memory is not met (see above)")
@@ -214,3 +244,26 @@ def _pct(v: float) -> str:
     from ..report.compare import percent_text
 
     return percent_text(v, 1)
+
+
+NUMBER_COLUMNS = ("clock", "n", "each", "power", "memories", "busy", "start", "end")
+
+
+def _keep_numbers(table, con=None) -> None:
+    """Numbers are never cut: on a narrow console the name columns give up their width
+    (a long name folds onto a second line) and the columns of numbers keep theirs."""
+    from rich.text import Text
+
+    if con is not None and con.width < 80:
+        table.padding = (0, 0)              # a narrow console: every column counts
+    for col in table.columns:
+        col.no_wrap = col.header in NUMBER_COLUMNS
+        if col.header in NUMBER_COLUMNS:
+            cells = [Text.from_markup(c) if isinstance(c, str) else c for c in col.cells]
+            col.min_width = max([len(str(col.header))] + [c.cell_len for c in cells if isinstance(c, Text)])
+        else:
+            col.no_wrap = False
+            col.overflow = "fold"
+            col.min_width = len(str(col.header))
+            if col.header == "memory" and table.columns[0] is not col:     # words×bits, then " m8"
+                col.min_width = max([col.min_width] + [len(str(c).split()[0]) for c in col.cells if str(c).strip()])
