@@ -288,3 +288,38 @@ def test_plan_generate_candidate_and_narrow_console(tmp_path, cli, monkeypatch):
     # 4 operations × 64 words at 100 MHz = 2.56 µs per memory, two memories one after the other
     assert "2.56 µs" in out and "5 mW" in out and "100MHz" in out
     assert "total test time 5.12 µs" in out
+
+
+# ---- the bitmap of a die with a row, a column, a block and lone cells ----------------------
+
+def test_bitmap_block_is_a_cluster_and_lone_cells_are_circled(tmp_path, cli):
+    # common practice of failure analysis, no source: a dense block is one cluster (it was
+    # reported as 11 rows and 13 columns); in a binned picture lone cells get a circle
+    lines = ["row,col"]
+    lines += [f"1234,{c}" for c in range(1024)]                 # a whole row
+    lines += [f"{r},777" for r in range(0, 4096, 3)]             # a column, every third cell
+    lines += [f"{r},{c}" for r in range(2000, 2010) for c in range(100, 112)]     # a 10 × 12 block
+    lone = [(17, 3), (400, 900), (3000, 40), (4090, 1000)]
+    lines += [f"{r},{c}" for r, c in lone]
+    bm = tmp_path / "die77.csv"
+    bm.write_text("\n".join(lines) + "\n")
+    pic = tmp_path / "die77.svg"
+    code, out, err = cli("repair", "--bitmap", str(bm), "--rows", "4096", "--cols", "1024",
+                         "--spare-rows", "16", "--spare-cols", "16", "--picture", str(pic))
+    assert code == 0, err
+    assert "repairable" in out
+    import re
+
+    words = " ".join(" ".join(re.findall(r"<text[^>]*>(.*?)</text>", pic.read_text(), re.S)).split())
+    assert "multiple: 1 row, 1 column, 1 cluster, 4 single cells" in words
+    assert "single failing cell (4)" in words
+
+
+def test_two_shorted_rows_stay_rows():
+    # two neighbouring rows failing along their whole length are two rows, not a cluster
+    from marchkit.diagnose import bitmap_from_rc
+
+    b = bitmap_from_rc(256, 64, [10] * 64 + [11] * 64, list(range(64)) * 2)
+    assert [p.kind for p in b.parts] == ["row", "row"]
+    b = bitmap_from_rc(256, 64, [10, 10, 11, 11, 12, 12], [5, 6, 5, 6, 5, 6])
+    assert b.kind == "cluster" and b.detail == "6 failing cells within rows 10–12, columns 5–6"

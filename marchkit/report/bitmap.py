@@ -65,6 +65,14 @@ def bitmap_figure(bm, title: str = "", plan=None):
             ax.scatter(bm.c, bm.r, s=d * d, facecolors="none", edgecolors=INK, linewidths=0.9, zorder=3)
             handles[0] = Line2D([], [], marker="o", linestyle="", markerfacecolor=VERMILLION,
                                 markeredgecolor=INK, label=f"failing cell ({bm.count})")
+        elif bm.count > MARK_LIMIT:
+            # too many to circle all: circle the isolated ones, a pixel each in a binned picture
+            lone = [p for p in getattr(bm, "parts", []) if p.kind == "single cell"][:MARK_LIMIT]
+            if lone:
+                ax.scatter([p.cols[0] for p in lone], [p.rows[0] for p in lone], s=36, facecolors="none",
+                           edgecolors=INK, linewidths=0.9, zorder=3)
+                handles.append(Line2D([], [], marker="o", linestyle="", markerfacecolor="none",
+                                      markeredgecolor=INK, label=f"single failing cell ({len(lone)})"))
         mux = getattr(bm, "mux", 1) or 1
         bits = cols // mux if mux > 1 else 0
         if mux > 1 and bits <= 128:
