@@ -323,3 +323,23 @@ def test_two_shorted_rows_stay_rows():
     assert [p.kind for p in b.parts] == ["row", "row"]
     b = bitmap_from_rc(256, 64, [10, 10, 11, 11, 12, 12], [5, 6, 5, 6, 5, 6])
     assert b.kind == "cluster" and b.detail == "6 failing cells within rows 10–12, columns 5–6"
+
+
+@pytest.mark.parametrize("old, new, message, line, col", [
+    ('budget = "24mW"', 'budget = "1e999mW"', "'1e999mW' is out of range for a power (1nW to 1000W)", 10, 10),
+    ('budget = "24mW"', 'budget = "1e99999999999mW"', "is out of range for a power", 10, 10),
+    ('power = "5mW"', 'power = "1e-30W"', "'1e-30W' is out of range for a power", 18, 9),
+    ('power = "5mW"', 'access_energy = "1e999pJ"', "out of range for an energy per access (1e-18J to 1mJ)", 18, 17),
+    ("SF = 100", "SF = nan", "a required coverage is a percentage from 0 to 100 (got nan)", 7, 6),
+    ("SF = 100", "SF = inf", "a required coverage is a percentage from 0 to 100 (got inf)", 7, 6),
+])
+def test_plan_absurd_numbers_are_positioned_errors(tmp_path, cli, old, new, message, line, col):
+    # each used to end in an OverflowError or ValueError traceback after the file was read
+    text = TINY_SOC.replace("NAME", "Ouzel").replace("GROUP", "g")
+    assert old in text
+    soc = tmp_path / "bad.toml"
+    soc.write_text(text.replace(old, new))
+    code, out, err = cli("plan", str(soc), "--workers", "1")
+    assert code == 2 and out == ""
+    assert err.startswith(f"{soc}:{line}:{col}: error: ") and message in err, err
+    assert "Traceback" not in err

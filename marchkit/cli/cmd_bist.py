@@ -42,7 +42,7 @@ def run(args) -> int:
 
     from ..bist import MAX_LAT, write_bist, write_program
     from ..errors import InputError
-    from ..units import format_time
+    from ..report.compare import format_time
     from .common import load_test, memory_from_args
 
     if not 1 <= args.latency <= MAX_LAT:
