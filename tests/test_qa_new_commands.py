@@ -343,3 +343,19 @@ def test_plan_absurd_numbers_are_positioned_errors(tmp_path, cli, old, new, mess
     assert code == 2 and out == ""
     assert err.startswith(f"{soc}:{line}:{col}: error: ") and message in err, err
     assert "Traceback" not in err
+
+
+def test_existing_picture_is_refused_before_the_diagnosis(die12, tmp_path, cli, monkeypatch):
+    # limits before work (DEVELOPERS.md): the refusal used to come after the whole diagnosis
+    import marchkit.diagnose
+
+    def no_work(*a, **k):
+        raise AssertionError("the diagnosis ran before the output was checked")
+
+    monkeypatch.setattr(marchkit.diagnose, "diagnose", no_work)
+    mem, log = die12
+    pic = tmp_path / "old.png"
+    pic.write_bytes(b"mine")
+    code, out, err = cli("diagnose", "March C-", "--memory", str(mem), "--fails", str(log), "--picture", str(pic))
+    assert code == 2 and err == f"error: {pic} exists; use --force to replace it\n"
+    assert pic.read_bytes() == b"mine"

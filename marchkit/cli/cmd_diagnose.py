@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import os
 from pathlib import Path
 
 
@@ -50,6 +51,10 @@ def run(args) -> int:
         from ..report.style import plot_format
 
         plot_format(args.picture)                   # a bad extension fails before any work
+        if os.path.lexists(args.picture) and not args.force:     # before the work, not after it
+            from ..errors import OutputError
+
+            raise OutputError(f"{args.picture} exists; use --force to replace it")
     test = load_test(args.test)
     mem = memory_from_args(args)
     log = read_fail_log(args.fails, mem, test)

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import os
 from pathlib import Path
 
 MAX_SIDE = 1 << 24      # rows or columns of a --bitmap array (the bitmap classifier counts per line)
@@ -79,6 +80,10 @@ def run(args) -> int:
         from ..report.style import plot_format
 
         plot_format(args.picture)
+        if os.path.lexists(args.picture) and not args.force:     # before the work, not after it
+            from ..errors import OutputError
+
+            raise OutputError(f"{args.picture} exists; use --force to replace it")
     rows, cols, r, c, mux, name = _cells(args)
     plan = plan_repair(r, c, rows, cols, args.spare_rows, args.spare_cols)
     if args.picture:
