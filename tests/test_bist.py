@@ -473,7 +473,7 @@ def test_cli_writes_directory_and_summary(tmp_path, cli):
                          "--top", "heron_mbist", "-o", str(out_dir))
     assert code == 0, err
     assert sorted(p.name for p in out_dir.iterdir()) == ["heron_mbist.v", "heron_mbist_program.hex", "heron_mbist_tb.v"]
-    assert "640 cycles" in out and "6.4us at 100 MHz" in out
+    assert "640 cycles" in out and "6.4 µs at 100 MHz" in out
     text = (out_dir / "heron_mbist.v").read_text()
     assert 'parameter PROGRAM = "heron_mbist_program.hex"' in text
     assert re.search(r"module heron_mbist #\(.*\) \(\s*input\s+wire\s+clk,\s*input\s+wire\s+rst_n,\s*input\s+wire\s+start,", text, re.S)
@@ -605,4 +605,4 @@ def test_cli_transparent(tmp_path, cli):
     code, out, err = cli("bist", "March SR", "--transparent", "-o", str(tmp_path / "x"))
     assert code == 2 and "begin with a read" in err
     code, out, err = cli("bist", "March C-", "--words", "64", "--transparent", "-o", str(tmp_path / "y"))
-    assert code == 0 and "transparent" in out and "1152 cycles" in out
+    assert code == 0 and "transparent" in out and "1,152 cycles" in out

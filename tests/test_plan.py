@@ -128,7 +128,6 @@ BAD = [
     ("CFin = 100", "CFIN = 100", "did you mean 'CFin'", 10, 1),
     ("CFin = 100", "CFin = 120", "0 to 100", 10, 8),
     ("\"March SS\"]", "\"March QQ\"]", "not a test in the library", 4, 31),
-    ("\"March SS\"]", "\"generate\"]", "needs the test generator", 4, 31),
     ("mux = 4\npower", "mux = 3\npower", "column mux 3", 22, 7),
     ("domain = \"slow\"", "domain = \"fast\"", "unknown clock domain 'fast'", 47, 10),
     ("domain = \"slow\"", "domain = \"slow\"\ngroup = \"bm0_bist\"", "mixes clock domains", 48, 9),

@@ -103,18 +103,54 @@ def generate(test, mem, style: str, top: str, lat: int = 1, prog_depth: int | No
     return ir, files, prog_depth
 
 
-def write_directory(files: dict, outdir, force: bool = False) -> None:
-    """Write ``files`` into a new directory next to ``outdir`` and rename it into place at the
-    end: a reader never sees a half-written directory.  An existing ``outdir`` is an error
-    without ``force``; with it, the old directory is replaced as a whole."""
+# What a directory written by `bist` may hold besides our files, and still be replaced by --force:
+# the outputs of simulating and linting it (Icarus, Verilator) in place.
+_REPLACEABLE_SUFFIXES = (".v", ".hex", ".vvp", ".vcd", ".fst", ".log")
+_REPLACEABLE_DIRS = ("obj_dir",)
+
+
+def _check_replaceable(out: Path) -> None:
+    """--force replaces a directory as a whole: only one that looks like an earlier controller
+    directory (never the working directory or one above it, never one holding other files)."""
+    here = Path.cwd().resolve()
+    real = out.resolve()
+    if real == here or real in here.parents:
+        raise OutputError(f"{out} is the working directory or holds it; --force will not replace it")
+    try:
+        entries = sorted(os.listdir(out))
+    except OSError as e:
+        raise OutputError(f"cannot replace {out}: {e.strerror}") from None
+    other = [n for n in entries
+             if not ((out / n).is_file() and n.endswith(_REPLACEABLE_SUFFIXES))
+             and not ((out / n).is_dir() and n in _REPLACEABLE_DIRS)]
+    if other:
+        shown = ", ".join(other[:3]) + (", …" if len(other) > 3 else "")
+        raise OutputError(f"{out} holds files bist did not write ({shown}); --force replaces only a "
+                          "controller directory: choose another -o or empty it yourself")
+
+
+def check_output_dir(outdir, force: bool = False) -> tuple[Path, Path]:
+    """Refuse an output directory before any work: (the directory, its parent)."""
+    if not str(outdir).strip():
+        raise OutputError("give the output directory a name (-o DIR)")
     out = Path(outdir)
     if out.exists() and not out.is_dir():
         raise OutputError(f"{out} exists and is not a directory")
     if out.exists() and not force:
         raise OutputError(f"{out} exists; use --force to replace it")
+    if out.exists():
+        _check_replaceable(out)
     parent = out.parent if str(out.parent) else Path(".")
     if not parent.is_dir():
         raise OutputError(f"cannot write {out}: no directory {parent}")
+    return out, parent
+
+
+def write_directory(files: dict, outdir, force: bool = False) -> None:
+    """Write ``files`` into a new directory next to ``outdir`` and rename it into place at the
+    end: a reader never sees a half-written directory.  An existing ``outdir`` is an error
+    without ``force``; with it, the old directory is replaced as a whole."""
+    out, parent = check_output_dir(outdir, force)
     try:
         tmp = Path(tempfile.mkdtemp(prefix=f".{out.name}.", suffix=".part", dir=parent))
     except OSError as e:
@@ -145,6 +181,7 @@ def write_directory(files: dict, outdir, force: bool = False) -> None:
 
 def write_bist(test, mem, outdir, style: str = "fsm", top: str = "mbist", force: bool = False,
                lat: int = 1, area: bool = False, transparent: bool = False) -> BistResult:
+    check_output_dir(outdir, force)             # before the RTL and its synthesis
     ir, files, depth = generate(test, mem, style, top, lat, transparent=transparent)
     rep = None
     if area:

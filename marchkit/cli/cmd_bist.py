@@ -42,7 +42,7 @@ def run(args) -> int:
 
     from ..bist import MAX_LAT, write_bist, write_program
     from ..errors import InputError
-    from ..faults import format_seconds
+    from ..report.compare import format_time
     from .common import load_test, memory_from_args
 
     if not 1 <= args.latency <= MAX_LAT:
@@ -54,7 +54,7 @@ def run(args) -> int:
         ir, depth = write_program(test, mem, args.output, args.top, args.force, transparent=args.transparent)
         if not args.quiet:
             out.write(f"wrote {args.output}: {len(ir.steps)} instructions (PROG_DEPTH {depth}) for "
-                      f"{ir.test_name} on {ir.memory_name} {ir.words}x{ir.dw}, {ir.cycles} cycles\n")
+                      f"{ir.test_name} on {ir.memory_name} {ir.words} × {ir.dw} bits, {ir.cycles:,} cycles\n")
         return 0
     res = write_bist(test, mem, args.output, args.style, args.top, args.force, args.latency, args.area,
                      args.transparent)
@@ -63,7 +63,7 @@ def run(args) -> int:
     ir = res.ir
     mhz = float(ir.clock_hz) / 1e6
     out.write(f"wrote {res.directory}: {', '.join(res.files)} ({res.style} style)\n")
-    out.write(f"test: {ir.cycles} cycles, {ir.ops} operations, {format_seconds(ir.seconds)} at {mhz:g} MHz"
+    out.write(f"test: {ir.cycles:,} cycles, {ir.ops:,} operations, {format_time(ir.seconds)} at {mhz:g} MHz"
               + (" (transparent: signature prediction, then the test)\n" if ir.transparent else
                  f" ({ir.runs} background run{'s' if ir.runs != 1 else ''})\n"))
     if res.area is not None:

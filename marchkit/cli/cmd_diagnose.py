@@ -3,6 +3,8 @@
 from __future__ import annotations
 
 import json
+import os
+from pathlib import Path
 
 
 # One defect at a time: linked faults (two faults at once) and faults of three or more cells
@@ -55,6 +57,10 @@ def run(args) -> int:
         from ..report.style import plot_format
 
         plot_format(args.picture)                   # a bad extension fails before any work
+        if os.path.lexists(args.picture) and not args.force:     # before the work, not after it
+            from ..errors import OutputError
+
+            raise OutputError(f"{args.picture} exists; use --force to replace it")
     test = load_test(args.test)
     mem = memory_from_args(args)
     log = read_fail_log(args.fails, mem, test)
@@ -62,17 +68,18 @@ def run(args) -> int:
     if args.picture:
         from ..report.bitmap import write_bitmap_picture
 
-        write_bitmap_picture(d.bitmap, args.picture, title=f"{test.display_name}: {log.name}", force=args.force)
+        write_bitmap_picture(d.bitmap, args.picture, title=f"{test.display_name}: {Path(str(log.name)).name}", force=args.force)
     if args.json:
         print(json.dumps(d.to_json(args.top, args.members or 50), indent=2, ensure_ascii=False))
         return 0
     show(d, console(), args.top, args.members or 6)
     if args.picture:
-        console().print(f"picture written to {args.picture}")
+        console().print(f"picture written to {args.picture}", markup=False)
     return 0
 
 
 def show(d, con, top=10, members=6) -> None:
+    from rich.markup import escape as e
     from rich.table import Table
 
     from ..diagnose.diagnosis import member_text
@@ -80,20 +87,31 @@ def show(d, con, top=10, members=6) -> None:
     from .cmd_grade import memory_line
 
     mem = d.memory
-    con.print(f"[bold]{d.test.display_name}[/bold]   {format_notation(d.test)}")
-    con.print(f"memory   {memory_line(mem)}")
+
+    def facts(rows) -> None:
+        """``label  text`` lines; a long text wraps under itself, not under the label."""
+        g = Table.grid(padding=(0, 2))
+        g.add_column(no_wrap=True)
+        g.add_column()
+        for label, text in rows:
+            g.add_row(label, text)
+        con.print(g)
+
+    con.print(f"[bold]{e(d.test.display_name)}[/bold]   {format_notation(d.test)}")
     nc = len(d.log.cells(mem.bits))
     nw = len(d.log.words())
-    con.print(f"log      {d.log.name}: {len(d.log.fails)} failing compare{'s' if len(d.log.fails) != 1 else ''}, "
-              f"{nc} failing cell{'s' if nc != 1 else ''} in {nw} word{'s' if nw != 1 else ''}")
-    con.print(f"bitmap   [bold]{d.bitmap.kind}[/bold]: {d.bitmap.detail}")
+    head = [("memory", e(memory_line(mem))),
+            ("log", f"{e(str(d.log.name))}: {len(d.log.fails)} failing compare{'s' if len(d.log.fails) != 1 else ''}, "
+                    f"{nc} failing cell{'s' if nc != 1 else ''} in {nw} word{'s' if nw != 1 else ''}"),
+            ("bitmap", f"[bold]{d.bitmap.kind}[/bold]: {d.bitmap.detail}")]
     if len(d.bitmap.parts) > 1:
         for p in d.bitmap.parts[:8]:
-            con.print(f"         {p.kind}: {p.cells} cell{'s' if p.cells != 1 else ''}, rows {p.rows[0]}–{p.rows[1]}, "
-                      f"columns {p.cols[0]}–{p.cols[1]}")
+            head.append(("", f"{p.kind}: {p.cells} cell{'s' if p.cells != 1 else ''}, rows {p.rows[0]}–{p.rows[1]}, "
+                             f"columns {p.cols[0]}–{p.cols[1]}"))
         if len(d.bitmap.parts) > 8:
-            con.print(f"         … and {len(d.bitmap.parts) - 8} more parts")
-    con.print(f"faults   {d.faults_spec}   pairs {d.pairs_spec}")
+            head.append(("", f"… and {len(d.bitmap.parts) - 8} more parts"))
+    head.append(("faults", f"{e(str(d.faults_spec))}   pairs {e(str(d.pairs_spec))}"))
+    facts(head)
     if not d.candidates:
         con.print("no candidate fault of the listed kinds involves the failing cells")
     else:
@@ -109,10 +127,14 @@ def show(d, con, top=10, members=6) -> None:
             if c.size > len(names):
                 names.append(f"… {c.size - len(names):,} more")
             mm = "0 (exact)" if c.mismatches == 0 else str(c.mismatches)
-            t.add_row(str(c.rank), mm, f"{c.size:,}", "\n".join(names))
+            t.add_row(str(c.rank), mm, f"{c.size:,}", e("\n".join(names)))
         con.print(t)
         if len(d.candidates) > top:
             con.print(f"[dim]… {len(d.candidates) - top} more classes (--top N)[/dim]")
+        con.print("[dim]mismatches: compares where the fault's predicted fails differ from the log; members: "
+                  "fault primitive <S/F/R> or fault name, then its cells: wW.bB is word W (decimal) bit B, "
+                  "a= the aggressor, v= the victim[/dim]")
+    rest = []
     cons = d.consistent
     if cons:
         best = cons[0].mismatches
@@ -120,19 +142,21 @@ def show(d, con, top=10, members=6) -> None:
         how = (("matches" if one else "match") + " the log exactly" if best == 0
                else ("is" if one else "are") + f" nearest ({best} mismatch{'es' if best != 1 else ''})")
         sizes = ", ".join(f"{c.size:,}" for c in cons[:12]) + (" …" if len(cons) > 12 else "")
-        con.print(f"resolution  {len(cons)} class{'es' if len(cons) != 1 else ''} {how}, of size{'' if one else 's'} {sizes}; "
-                  f"{len(d.candidates):,} classes and {d.total_candidates:,} candidate faults considered")
+        rest.append(("resolution", f"{len(cons)} class{'es' if len(cons) != 1 else ''} {how}, of size{'' if one else 's'} "
+                                   f"{sizes}; {len(d.candidates):,} classes and {d.total_candidates:,} candidate faults "
+                                   "considered"))
         if best:
-            c0 = d.candidates[0]
-            diffs = c0.diffs
-            con.print(f"            the best class differs from the log in {len(diffs['missing'])} predicted fail(s) "
-                      f"not logged, {len(diffs['unexpected'])} logged fail(s) not predicted, "
-                      f"{len(diffs['different'])} with other data")
+            diffs = d.candidates[0].diffs
+            rest.append(("", f"the best class differs from the log in {len(diffs['missing'])} predicted fail(s) "
+                             f"not logged, {len(diffs['unexpected'])} logged fail(s) not predicted, "
+                             f"{len(diffs['different'])} with other data"))
     if d.hint:
-        con.print(f"hint        class of rank {d.hint['class_rank']} with {d.hint['class_size']:,} faults: "
-                  f"{d.hint['text']}")
+        rest.append(("hint", f"class of rank {d.hint['class_rank']} with {d.hint['class_size']:,} faults: "
+                             f"{e(d.hint['text'])}"))
         for alt in d.hint.get("alternatives", [])[:3]:
-            con.print(f"            or {alt['element']}: {len(alt['split'])} classes of "
-                      f"{', '.join(map(str, alt['split']))}")
+            rest.append(("", f"or {e(alt['element'])}: {len(alt['split'])} classes of "
+                             f"{', '.join(map(str, alt['split']))}"))
     for n in d.notes:
-        con.print(f"[yellow]note[/yellow]        {n}")
+        rest.append(("[yellow]note[/yellow]", e(n)))
+    if rest:
+        facts(rest)

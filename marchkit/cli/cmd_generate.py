@@ -134,31 +134,38 @@ def run(args) -> int:
     if args.json:
         print(json.dumps(res.to_json(), indent=2, ensure_ascii=False))
         return 0
+    from rich.markup import escape as e
+
     con = console()
     t = res.test
-    con.print(f"[bold]{t.name}[/bold]  {t.length_text}   {format_notation(t)}")
+    con.print(f"[bold]{e(t.name)}[/bold]  {t.length_text}   {format_notation(t)}")
     if res.origin == "like":
-        con.print(f"shortened {args.like} to {res.length}n, keeping every detection "
-                  f"({res.nodes} candidate tests graded); not proven minimal")
+        con.print(f"shortened {e(args.like)} to {res.length}n, keeping every detection "
+                  f"({_n(res.nodes, 'candidate test')} graded); not proven minimal")
     elif res.proven_minimal:
         con.print(f"proven minimal: every test shorter than {res.length}n in the search space was ruled out "
-                  f"({res.nodes:,} nodes, {res.keys} fault keys)")
+                  f"({_n(res.nodes, 'node')}, {_n(res.keys, 'fault key')})")
     else:
         why = f" — {res.stopped}" if res.stopped else ""
-        con.print(f"not proven minimal: lower bound {res.lower_bound}n reached{why} ({res.nodes:,} nodes)")
+        con.print(f"not proven minimal: lower bound {res.lower_bound}n reached{why} ({_n(res.nodes, 'node')})")
     g = res.grade
     con.print(f"confirmed on the memory: {g.total.detected:,} of {g.total.instances:,} fault instances detected "
               f"({100 * g.total.coverage:.2f} %)")
     for f, where, reason in res.excluded[:10]:
-        con.print(f"excluded {f} ({where}): {reason}")
+        con.print(f"excluded {f} ({where}): {reason}", markup=False)
     if len(res.excluded) > 10:
         con.print(f"... and {len(res.excluded) - 10} more excluded keys")
     for f, reason in res.unsupported:
-        con.print(f"not searched {f}: {reason}")
+        con.print(f"not searched {f}: {reason}", markup=False)
     if res.origin == "like":
         con.print(f"[dim]{res.seconds:.3g} s[/dim]")
     else:
         con.print(f"[dim]{res.seconds:.3g} s (first solution after {res.first_solution_seconds:.3g} s)[/dim]")
     if args.output:
-        con.print(f"written to {args.output}")
+        con.print(f"written to {args.output}", markup=False)
     return 0
+
+
+def _n(count: int, noun: str) -> str:
+    """``1 node``, ``4,549 nodes``."""
+    return f"{count:,} {noun}{'' if count == 1 else 's'}"

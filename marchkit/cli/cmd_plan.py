@@ -68,9 +68,9 @@ def run(args) -> int:
         progress = None
     if prog:
         with prog:
-            plan = make_plan(soc, connect=connect, progress=progress)
+            plan = make_plan(soc, connect=connect, progress=progress, generator=generate_candidates)
     else:
-        plan = make_plan(soc, connect=connect)
+        plan = make_plan(soc, connect=connect, generator=generate_candidates)
     data = plan.to_json()
     written = []
     if args.gantt:
@@ -87,7 +87,7 @@ def run(args) -> int:
     if args.json:
         print(json.dumps(data, indent=2, ensure_ascii=False))
         for w in written:
-            console(stderr=True).print(f"wrote {w}")
+            console(stderr=True).print(f"wrote {w}", markup=False)
         return status
     con = console()
     if not sys.stdout.isatty():      # tables fit the width asked for (80 columns by default)
@@ -98,8 +98,34 @@ def run(args) -> int:
         con = Console(highlight=False, soft_wrap=False, width=int(os.environ.get("COLUMNS", "0") or 0) or 80)
     show_plan(data, con)
     for w in written:
-        con.print(f"wrote {w}")
+        con.print(f"wrote {w}", markup=False)
     return status
+
+
+GENERATE_TIME_LIMIT_S = 60      # per memory type: the best test found by then, proven minimal or not
+
+
+def generate_candidates(soc, variants, client) -> dict:
+    """The "generate" candidate: per memory type that lists it, the shortest test found by
+    ``marchkit generate`` for the classes the type must cover (its ``require`` table), on the
+    type's memory, searched on the plan's Dask client.  The plan then grades it like any
+    other candidate, so a class the generator does not search (SOF, DRF) is still checked."""
+    from ..errors import InputError
+    from ..generate import GenerateError, generate
+
+    out: dict = {}
+    for v in variants.values():
+        t = v.type
+        if t.name in out or not any(soc.candidates[spec].is_generate for spec in soc.type_tests(t)):
+            continue
+        classes = [c for c, p in t.require.items() if p > 0]
+        try:
+            res = generate(",".join(classes) if classes else soc.faults, v.memory, soc.pairs, soc.retention,
+                           time_limit=GENERATE_TIME_LIMIT_S, executor=client)
+        except GenerateError as e:
+            raise InputError(f"memory type {t.name!r}: generate: {e}") from None
+        out[t.name] = [res.test]
+    return out
 
 
 def fmt_s(seconds: float) -> str:
@@ -120,6 +146,7 @@ def _geometry(m: dict) -> str:
 
 
 def show_plan(data: dict, con) -> None:
+    from rich.markup import escape as e
     from rich.table import Table
 
     from ..report.compare import format_frequency
@@ -128,10 +155,12 @@ def show_plan(data: dict, con) -> None:
     types = data["types"]
     groups = data["groups"]
     domains = sorted({i["domain"] for i in inst})
-    con.print(f"[bold]{data['soc']}[/bold]: {len(inst)} memories of {len({t['type'] for t in types})} "
-              f"types, {len(groups)} BIST groups, {len(domains)} clock domain{'s' if len(domains) != 1 else ''}")
+    ntypes = len({t['type'] for t in types})
+    con.print(f"[bold]{e(data['soc'])}[/bold]: {len(inst)} memor{'y' if len(inst) == 1 else 'ies'} of {ntypes} "
+              f"type{'' if ntypes == 1 else 's'}, {len(groups)} BIST group{'' if len(groups) == 1 else 's'}, "
+              f"{len(domains)} clock domain{'s' if len(domains) != 1 else ''}")
     s = data["schedule"]
-    con.print(f"faults {data['faults']}   pairs {data['pairs']}   power budget {fmt_w(s['budget_w'])}")
+    con.print(f"faults {e(data['faults'])}   pairs {e(data['pairs'])}   power budget {fmt_w(s['budget_w'])}")
     g = data["graded"]
     if g["computed"]:
         con.print(f"graded {g['jobs']} test × memory pairs: {g['computed']} on {g['workers']}, "
@@ -145,18 +174,21 @@ def show_plan(data: dict, con) -> None:
                       ("test", "left"), ("each", "right"), ("power", "right")):
         t.add_column(col, justify=just, no_wrap=True)
     for ty in types:
-        t.add_row(ty["type"], _geometry(ty["memory"]), format_frequency(ty["clock_hz"]).replace(" ", ""),
-                  str(ty["instances"]), (ty["test"] or "—") + ("" if ty["meets"] else " [bold red]![/bold red]"),
+        t.add_row(e(ty["type"]), _geometry(ty["memory"]), format_frequency(ty["clock_hz"]).replace(" ", ""),
+                  str(ty["instances"]), e(ty["test"] or "—") + ("" if ty["meets"] else " [bold red]![/bold red]"),
                   fmt_s(ty["seconds"]) if ty["seconds"] else "—", fmt_w(ty["power_w"]))
+    _keep_numbers(t, con)
     con.print(t)
+    con.print("[dim]n: instances of the type; each: test time of one instance; power: drawn while its "
+              "test runs; m8: column mux 8[/dim]")
     short = [ty for ty in types if not ty["meets"]]
     if short:
         con.print("[bold red]requirements no candidate meets[/bold red]")
         con.print("(these memories would ship less tested than required)")
         for ty in short:
             for u in ty["unmet"]:
-                con.print(f"  {ty['type']} at {format_frequency(ty['clock_hz'])}: {u['class']} ≥ "
-                          f"{u['required']:g} % — best {_pct(u['best'])} % ({u['best_test']})")
+                con.print(f"  {e(ty['type'])} at {format_frequency(ty['clock_hz'])}: {u['class']} ≥ "
+                          f"{u['required']:g} % — best {_pct(u['best'])} % ({e(str(u['best_test']))})")
     status = s["status"]
     how = ("optimal" if status == "optimal" else
            f"feasible; lower bound {fmt_s(s['lower_bound_s'])}, gap {100 * s['gap']:.1f} %")
@@ -172,22 +204,24 @@ def show_plan(data: dict, con) -> None:
                       ("start", "right"), ("end", "right")):
         gt.add_column(col, justify=just, no_wrap=True)
     for grp in sorted(groups, key=lambda x: (-x["end_s"], x["group"])):
-        gt.add_row(grp["group"], grp["domain"], str(grp["instances"]), fmt_s(grp["busy_s"]),
+        gt.add_row(e(grp["group"]), e(grp["domain"]), str(grp["instances"]), fmt_s(grp["busy_s"]),
                    fmt_s(grp["start_s"]), fmt_s(grp["end_s"]))
+    _keep_numbers(gt, con)
     con.print(gt)
     order = sorted(groups, key=lambda x: (-x["end_s"], x["group"]))
     for grp in order:
         if grp["instances"] < 2:
             continue
         rows = sorted(by_group[grp["group"]], key=lambda r: (r["start_s"], r["name"]))
-        tt = Table(show_edge=False, pad_edge=False, title=f"group {grp['group']} ({grp['domain']})",
+        tt = Table(show_edge=False, pad_edge=False, title=f"group {e(grp['group'])} ({e(grp['domain'])})",
                    title_justify="left", title_style="bold")
         for col, just in (("memory", "left"), ("type", "left"), ("test", "left"), ("start", "right"),
                           ("end", "right"), ("power", "right")):
             tt.add_column(col, justify=just, no_wrap=True, overflow="ellipsis")
         for r in rows:
-            tt.add_row(r["name"], r["type"], r["test"] + ("" if r["meets"] else " [red]![/red]"),
+            tt.add_row(e(r["name"]), e(r["type"]), e(r["test"]) + ("" if r["meets"] else " [red]![/red]"),
                        fmt_s(r["start_s"]), fmt_s(r["end_s"]), fmt_w(r["power_w"]))
+        _keep_numbers(tt, con)
         con.print(tt)
     singles = [by_group[g["group"]][0] for g in order if g["instances"] == 1]
     if singles:
@@ -197,9 +231,10 @@ def show_plan(data: dict, con) -> None:
                           ("end", "right"), ("power", "right")):
             tt.add_column(col, justify=just, no_wrap=True, overflow="ellipsis")
         for r in singles:
-            tt.add_row(r["name"], "" if r["group"] == r["name"] else r["group"],
-                       r["test"] + ("" if r["meets"] else " [red]![/red]"),
+            tt.add_row(e(r["name"]), "" if r["group"] == r["name"] else e(r["group"]),
+                       e(r["test"]) + ("" if r["meets"] else " [red]![/red]"),
                        fmt_s(r["start_s"]), fmt_s(r["end_s"]), fmt_w(r["power_w"]))
+        _keep_numbers(tt, con)
         con.print(tt)
     if any(not r["meets"] for r in inst):
         con.print("[red]![/red] a requirement of this memory is not met (see above)")
@@ -209,3 +244,26 @@ def _pct(v: float) -> str:
     from ..report.compare import percent_text
 
     return percent_text(v, 1)
+
+
+NUMBER_COLUMNS = ("clock", "n", "each", "power", "memories", "busy", "start", "end")
+
+
+def _keep_numbers(table, con=None) -> None:
+    """Numbers are never cut: on a narrow console the name columns give up their width
+    (a long name folds onto a second line) and the columns of numbers keep theirs."""
+    from rich.text import Text
+
+    if con is not None and con.width < 80:
+        table.padding = (0, 0)              # a narrow console: every column counts
+    for col in table.columns:
+        col.no_wrap = col.header in NUMBER_COLUMNS
+        if col.header in NUMBER_COLUMNS:
+            cells = [Text.from_markup(c) if isinstance(c, str) else c for c in col.cells]
+            col.min_width = max([len(str(col.header))] + [c.cell_len for c in cells if isinstance(c, Text)])
+        else:
+            col.no_wrap = False
+            col.overflow = "fold"
+            col.min_width = len(str(col.header))
+            if col.header == "memory" and table.columns[0] is not col:     # words×bits, then " m8"
+                col.min_width = max([col.min_width] + [len(str(c).split()[0]) for c in col.cells if str(c).strip()])

@@ -3,6 +3,10 @@
 from __future__ import annotations
 
 import json
+import os
+from pathlib import Path
+
+MAX_SIDE = 1 << 24      # rows or columns of a --bitmap array (the bitmap classifier counts per line)
 
 
 def register(sub):
@@ -44,6 +48,9 @@ def _cells(args):
             raise InputError("--bitmap needs the array size: --rows R --cols C")
         if args.rows < 1 or args.cols < 1:
             raise InputError("--rows and --cols must be at least 1")
+        if max(args.rows, args.cols) > MAX_SIDE:
+            raise InputError(f"--rows {args.rows:,} --cols {args.cols:,}: an array side is at most {MAX_SIDE:,} "
+                             "rows or columns here")
         from ..diagnose.repair import read_bitmap
 
         r, c = read_bitmap(args.bitmap, args.rows, args.cols)
@@ -73,6 +80,10 @@ def run(args) -> int:
         from ..report.style import plot_format
 
         plot_format(args.picture)
+        if os.path.lexists(args.picture) and not args.force:     # before the work, not after it
+            from ..errors import OutputError
+
+            raise OutputError(f"{args.picture} exists; use --force to replace it")
     rows, cols, r, c, mux, name = _cells(args)
     plan = plan_repair(r, c, rows, cols, args.spare_rows, args.spare_cols)
     if args.picture:
@@ -80,14 +91,20 @@ def run(args) -> int:
 
         bm = bitmap_from_rc(rows, cols, r, c)
         bm.mux = mux
-        verdict = "repairable" if plan.repairable else "NOT repairable"
-        write_bitmap_picture(bm, args.picture, title=f"{name}: {verdict} with {args.spare_rows}+{args.spare_cols} spares",
+        if plan.repairable:
+            verdict = (f"repairable: uses {len(plan.rows)} of {args.spare_rows} spare rows, "
+                       f"{len(plan.cols)} of {args.spare_cols} columns")
+        else:
+            verdict = f"NOT repairable with {args.spare_rows} spare rows, {args.spare_cols} spare columns"
+        write_bitmap_picture(bm, args.picture, title=f"{Path(name).name}: {verdict}",
                              plan=plan, force=args.force)
     if args.json:
         print(json.dumps(plan.to_json(), indent=2))
         return 0 if plan.repairable else 1
+    from rich.markup import escape
+
     con = console()
-    con.print(f"{name}: {plan.fails:,} failing cell{'s' if plan.fails != 1 else ''} in a {rows} × {cols} array; "
+    con.print(f"{escape(name)}: {plan.fails:,} failing cell{'s' if plan.fails != 1 else ''} in a {rows} × {cols} array; "
               f"spares {args.spare_rows} row{'s' if args.spare_rows != 1 else ''} + "
               f"{args.spare_cols} column{'s' if args.spare_cols != 1 else ''}")
     if plan.must_rows or plan.must_cols:
@@ -102,7 +119,7 @@ def run(args) -> int:
         con.print(f"[bold red]NOT repairable[/bold red] with these spares: {plan.reason}")
         con.print("do not ship this part")
     if args.picture:
-        con.print(f"picture written to {args.picture}")
+        con.print(f"picture written to {args.picture}", markup=False)
     return 0 if plan.repairable else 1
 
 

@@ -125,19 +125,37 @@ def classify(bm: Bitmap) -> Bitmap:
         bm.kind, bm.detail = "none", "no failing cells"
         return bm
     ur, uc = np.unique(r), np.unique(c)
-    # lines: rows / columns with LINE_MIN or more failing cells
-    rows_cnt = np.bincount(r, minlength=bm.rows)
-    cols_cnt = np.bincount(c, minlength=bm.cols)
+    # a dense block (two or more rows and columns, at least half its box failing) is a cluster,
+    # not a bundle of short rows and columns: its cells are set aside before lines are counted
+    dense = np.zeros(n, dtype=bool)
+    blocks = []
+    if 3 <= n <= 200_000:
+        lab = _blobs(r, c)
+        for u in np.unique(lab):
+            idx = np.nonzero(lab == u)[0]
+            h = int(r[idx].max() - r[idx].min()) + 1
+            w = int(c[idx].max() - c[idx].min()) + 1
+            # (a block spanning a quarter of the array's width or height stays lines: two
+            # shorted rows fail side by side over the whole row and are two rows)
+            if 2 <= h < bm.rows / 4 and 2 <= w < bm.cols / 4 and 2 * idx.size >= h * w:
+                dense[idx] = True
+                blocks.append(idx)
+    # lines: rows / columns with LINE_MIN or more failing cells outside dense blocks
+    rows_cnt = np.bincount(r[~dense], minlength=bm.rows)
+    cols_cnt = np.bincount(c[~dense], minlength=bm.cols)
     line_rows = np.nonzero(rows_cnt >= LINE_MIN)[0]
     line_cols = np.nonzero(cols_cnt >= LINE_MIN)[0]
-    in_line = np.isin(r, line_rows) | np.isin(c, line_cols)
+    in_line = (np.isin(r, line_rows) | np.isin(c, line_cols)) & ~dense
     for x in line_rows:
         m = r == x
         bm.parts.append(Part("row", int(m.sum()), (int(x), int(x)), (int(c[m].min()), int(c[m].max()))))
     for x in line_cols:
         m = c == x
         bm.parts.append(Part("column", int(m.sum()), (int(r[m].min()), int(r[m].max())), (int(x), int(x))))
-    rest = np.nonzero(~in_line)[0]
+    for idx in blocks:
+        bm.parts.append(Part("cluster", int(idx.size), (int(r[idx].min()), int(r[idx].max())),
+                             (int(c[idx].min()), int(c[idx].max()))))
+    rest = np.nonzero(~in_line & ~dense)[0]
     if rest.size and rest.size <= 200_000:
         lab = _blobs(r[rest], c[rest])
         for u in np.unique(lab):

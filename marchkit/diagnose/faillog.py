@@ -199,15 +199,45 @@ def parse_fail_log(text: str, name: str = "<fails>", words: int | None = None, b
     return FailLog(name, fails)
 
 
+MAX_LOG_BYTES = 1 << 30      # a fail log or bitmap file larger than this is refused before reading
+
+
+def read_text_file(path, what: str) -> str:
+    """The UTF-8 text of the ``what`` file at ``path`` (``what`` names it in errors): a missing,
+    special, huge or binary file is an :class:`InputError` with a one-line reason."""
+    import os
+    import stat
+
+    try:
+        st = os.stat(path)
+    except FileNotFoundError:
+        raise InputError(f"no {what} {path}") from None
+    except OSError as e:
+        raise InputError(f"cannot read the {what} {path}: {e.strerror}") from None
+    if stat.S_ISDIR(st.st_mode):
+        raise InputError(f"cannot read the {what} {path}: it is a directory")
+    if not (stat.S_ISREG(st.st_mode) or stat.S_ISFIFO(st.st_mode)):    # a pipe, <(zcat …), is fine
+        raise InputError(f"cannot read the {what} {path}: not a file or a pipe")
+    too_big = f"the {what} {path} has more than {MAX_LOG_BYTES:,} bytes, the most read here"
+    if st.st_size > MAX_LOG_BYTES:
+        raise InputError(too_big)
+    try:
+        with open(path, "rb") as f:
+            data = f.read(MAX_LOG_BYTES + 1)
+    except OSError as e:
+        raise InputError(f"cannot read the {what} {path}: {e.strerror}") from None
+    if len(data) > MAX_LOG_BYTES:
+        raise InputError(too_big)
+    try:
+        return data.decode("utf-8")
+    except UnicodeDecodeError as e:
+        raise InputError(f"the {what} {path} is not text: byte 0x{data[e.start]:02x} at offset {e.start} "
+                         "is not UTF-8") from None
+
+
 def read_fail_log(path, mem, test=None) -> FailLog:
     """Read and check the fail log at ``path`` for ``mem`` (and ``test`` when given)."""
-    p = Path(path)
-    try:
-        text = p.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise InputError(f"no fail log {path}") from None
-    except (OSError, UnicodeDecodeError) as e:
-        raise InputError(f"cannot read the fail log {path}: {e}") from None
+    text = read_text_file(path, "fail log")
     check = CompareTable(test, mem) if test is not None else None
     return parse_fail_log(text, str(path), mem.words, mem.bits, check)
 

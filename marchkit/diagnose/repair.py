@@ -222,13 +222,10 @@ def read_bitmap(path, rows: int, cols: int):
     from ..errors import SourcePos
     from .faillog import FailLogError
 
+    from .faillog import read_text_file
+
     name = str(path)
-    try:
-        text = Path(path).read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise InputError(f"no bitmap file {path}") from None
-    except (OSError, UnicodeDecodeError) as e:
-        raise InputError(f"cannot read the bitmap {path}: {e}") from None
+    text = read_text_file(path, "bitmap file")
     lines = text.split("\n")
     rr, cc = [], []
     header = False

@@ -54,8 +54,20 @@ def open_client(workers: int | None = None, scheduler: str | None = None):
             client.close()
         return
     n = int(workers) if workers is not None else (os.cpu_count() or 1)
-    cluster = LocalCluster(n_workers=n, threads_per_worker=1, processes=True, host="127.0.0.1",
-                           dashboard_address=":0", silence_logs=logging.CRITICAL)
+    # Ctrl-C goes to the whole process group: worker processes started while SIGINT is ignored
+    # inherit that, so only this process sees it, closes the cluster and reports "interrupted"
+    # (without this every worker printed its own KeyboardInterrupt traceback).
+    import signal
+    import threading
+
+    main = threading.current_thread() is threading.main_thread()
+    before = signal.signal(signal.SIGINT, signal.SIG_IGN) if main else None
+    try:
+        cluster = LocalCluster(n_workers=n, threads_per_worker=1, processes=True, host="127.0.0.1",
+                               dashboard_address=":0", silence_logs=logging.CRITICAL)
+    finally:
+        if main:
+            signal.signal(signal.SIGINT, before)
     client = Client(cluster)
     try:
         yield client

@@ -192,8 +192,8 @@ def check_generate(soc: Soc, generator) -> None:
         return
     for spec, c in soc.candidates.items():
         if c.is_generate:
-            raise soc.error("\"generate\" needs the test generator (marchkit generate), which this build "
-                            "of marchkit does not have; name library tests, files or notations instead",
+            raise soc.error("\"generate\" needs the test generator, which the caller did not pass "
+                            "(make_plan(generator=...); `marchkit plan` passes `marchkit generate`)",
                             c.pos)
 
 

@@ -11,6 +11,7 @@ comes from the instance's clock domain) and are validated by the same code.
 from __future__ import annotations
 
 import difflib
+import math
 import re
 from dataclasses import dataclass, field
 from fractions import Fraction
@@ -39,13 +40,26 @@ _ENERGY = {"nj": Fraction(1, 10**9), "pj": Fraction(1, 10**12), "fj": Fraction(1
 _NUM = r"([0-9]+(?:\.[0-9]*)?(?:[eE][+-]?[0-9]+)?)"
 
 
+# what a memory under test (or the whole SoC) can draw, and energy per access: limits checked
+# before the exact fraction is made (Fraction("1e999999999") would take forever)
+_LIMITS = {"a power": (Fraction(1, 10**9), Fraction(10**3), "1nW to 1000W"),
+           "an energy per access": (Fraction(1, 10**18), Fraction(1, 10**3), "1e-18J to 1mJ")}
+
+
 def _quantity(text, units: dict, what: str, example: str) -> Fraction:
     m = re.fullmatch(r"\s*" + _NUM + r"\s*([a-zA-Zµ]+)\s*", str(text)) if isinstance(text, str) else None
-    if not m or m.group(2).lower() not in units:
+    if not m or m.group(2).lower() not in units or len(m.group(1)) > 40:
         raise ModelError(f"{text!r} is not {what} such as {example}")
-    v = Fraction(m.group(1)) * units[m.group(2).lower()]
-    if v <= 0:
+    lo, hi, span = _LIMITS[what]
+    unit = units[m.group(2).lower()]
+    approx = float(m.group(1)) * float(unit)          # inf or 0.0 for absurd exponents
+    if approx <= 0:
         raise ModelError(f"{what} must be positive (got {text!r})")
+    if not float(lo) / 2 <= approx <= float(hi) * 2:
+        raise ModelError(f"{text!r} is out of range for {what} ({span})")
+    v = Fraction(m.group(1)) * unit
+    if not lo <= v <= hi:
+        raise ModelError(f"{text!r} is out of range for {what} ({span})")
     return v
 
 
@@ -267,6 +281,10 @@ class _Reader:
         ok = isinstance(v, typ) and not isinstance(v, bool)
         if not ok:
             raise self.fail(f"{key} must be {what} (got {type(v).__name__} {v!r})", self.pos.value(path + (key,)))
+        if isinstance(v, str) and any(ord(ch) < 32 or ord(ch) == 127 for ch in v):
+            # a name reaches one-line places: terminal tables, the chart title, the report
+            raise self.fail(f"{key} must be one line of text, without line breaks or control characters "
+                            f"(got {v!r})", self.pos.value(path + (key,)))
         return v
 
     def value_error(self, path: tuple, key: str, err: Exception, item: str | None = None) -> SocFileError:
@@ -285,6 +303,8 @@ def _path_text(path: tuple) -> str:
 def _percent(v) -> Fraction:
     if isinstance(v, bool) or not isinstance(v, (int, float)):
         raise ModelError(f"a required coverage is a percentage from 0 to 100 (got {v!r})")
+    if isinstance(v, float) and not math.isfinite(v):
+        raise ModelError(f"a required coverage is a percentage from 0 to 100 (got {v})")
     f = Fraction(str(v)) if isinstance(v, float) else Fraction(v)
     if not 0 <= f <= 100:
         raise ModelError(f"a required coverage is a percentage from 0 to 100 (got {v})")

@@ -44,7 +44,7 @@ def bitmap_figure(bm, title: str = "", plan=None):
             img[:, x // pc] = 1
     if bm.count:
         img[bm.r // pr, bm.c // pc] = 2
-    with matplotlib.rc_context(rc()):
+    with matplotlib.rc_context(_rc()):
         aspect = rows / max(1, cols)
         w = 7.2
         h = min(9.0, max(2.8, w * aspect * 0.9 + 1.2))
@@ -65,6 +65,14 @@ def bitmap_figure(bm, title: str = "", plan=None):
             ax.scatter(bm.c, bm.r, s=d * d, facecolors="none", edgecolors=INK, linewidths=0.9, zorder=3)
             handles[0] = Line2D([], [], marker="o", linestyle="", markerfacecolor=VERMILLION,
                                 markeredgecolor=INK, label=f"failing cell ({bm.count})")
+        elif bm.count > MARK_LIMIT:
+            # too many to circle all: circle the isolated ones, a pixel each in a binned picture
+            lone = [p for p in getattr(bm, "parts", []) if p.kind == "single cell"][:MARK_LIMIT]
+            if lone:
+                ax.scatter([p.cols[0] for p in lone], [p.rows[0] for p in lone], s=36, facecolors="none",
+                           edgecolors=INK, linewidths=0.9, zorder=3)
+                handles.append(Line2D([], [], marker="o", linestyle="", markerfacecolor="none",
+                                      markeredgecolor=INK, label=f"single failing cell ({len(lone)})"))
         mux = getattr(bm, "mux", 1) or 1
         bits = cols // mux if mux > 1 else 0
         if mux > 1 and bits <= 128:
@@ -84,11 +92,14 @@ def bitmap_figure(bm, title: str = "", plan=None):
         ttl = title or "fail bitmap"
         import textwrap
 
-        sub = textwrap.fill(f"{rows} rows × {cols} columns — {bm.kind}: {bm.detail}", 80)
-        ax.set_title(f"{textwrap.shorten(ttl, 80)}\n{sub}", loc="left")
-        if pr > 1 or pc > 1:
-            ax.text(1.0, -0.08, f"each pixel: {pr} row(s) × {pc} column(s)", transform=ax.transAxes,
-                    ha="right", va="top", fontsize=7, color=MUTED)
+        binned = f"; each pixel {pr:,} row(s) × {pc:,} column(s)" if pr > 1 or pc > 1 else ""
+        sub = textwrap.fill(f"{rows:,} rows × {cols:,} columns{binned} — {bm.kind}: {bm.detail}", 80)
+        ax.set_title(f"{textwrap.fill(ttl, 80, max_lines=2, placeholder=' …')}\n{sub}", loc="left")
+        from matplotlib.ticker import FuncFormatter
+
+        whole = FuncFormatter(lambda v, _pos: f"{int(round(v)):,}")     # 2,000,000, never an offset 1e6
+        ax.xaxis.set_major_formatter(whole)
+        ax.yaxis.set_major_formatter(whole)
         ax.legend(handles=handles, loc="upper left", bbox_to_anchor=(1.01, 1.0))
     return fig
 
@@ -101,6 +112,12 @@ def write_bitmap_picture(bm, path, title: str = "", plan=None, force: bool = Fal
 
     plot_format(path)
     fig = bitmap_figure(bm, title, plan)
-    with matplotlib.rc_context(rc()):
+    with matplotlib.rc_context(_rc()):
         save_figure(fig, path, force=force)
     return fig
+
+
+def _rc() -> dict:
+    """The house style, with ``$`` taken literally: names come from the user's files, and a
+    name such as ``d$\\frac$.csv`` must not be read as a TeX formula (it used to crash)."""
+    return {**rc(), "text.parse_math": False}

@@ -55,7 +55,7 @@ def plan_figure(data: dict):
     tests = list(dict.fromkeys(r["test"] for r in sorted(inst, key=lambda r: r["test"])))
     colour = {t: TEST_COLOURS[i % len(TEST_COLOURS)] for i, t in enumerate(tests)}
     hatch = {t: ("" if i < len(TEST_COLOURS) else "..") for i, t in enumerate(tests)}
-    with matplotlib.rc_context(rc()):
+    with matplotlib.rc_context(_rc()):
         rows = len(groups)
         fig = new_figure(10.5, min(3.2 + 0.21 * rows, 40))
         FigureCanvasAgg(fig)
@@ -89,7 +89,8 @@ def plan_figure(data: dict):
         ax.tick_params(axis="x", labelbottom=False)
         s = data["schedule"]
         how = "optimal" if s["status"] == "optimal" else f"feasible, gap {100 * s['gap']:.1f} %"
-        ax.set_title(f"{data['soc']}: {len(inst)} memories in {rows} BIST groups — total test time "
+        ax.set_title(f"{data['soc']}: {len(inst)} memor{'y' if len(inst) == 1 else 'ies'} in {rows} BIST "
+                     f"group{'' if rows == 1 else 's'} — total test time "
                      f"{total / scale:.4g} {unit} ({how})", color=INK)
         handles = [Patch(facecolor=colour[t], edgecolor="white", hatch=hatch[t], label=t) for t in tests]
         if any(len(r.get("active_s") or []) > 1 for r in inst):
@@ -122,6 +123,15 @@ def plan_figure(data: dict):
 
 def write_plan_gantt(data: dict, path, force: bool = False):
     """Draw the plan and write it (``.png`` or ``.svg``) atomically; returns the Figure."""
+    import matplotlib
+
     fig = plan_figure(data)
-    save_figure(fig, path, force=force)
+    with matplotlib.rc_context(_rc()):      # tick labels are made while saving
+        save_figure(fig, path, force=force)
     return fig
+
+
+def _rc() -> dict:
+    """The house style, with ``$`` taken literally: names come from the user's files, and a
+    name such as ``d$\\frac$.csv`` must not be read as a TeX formula (it used to crash)."""
+    return {**rc(), "text.parse_math": False}

@@ -54,8 +54,8 @@ def plan_html(data: dict) -> str:
     a(f"<h1>{_e(data['soc'])}</h1>")
     g = data["graded"]
     facts = [
-        ("memories", f"{len(inst)} instances of {len({t['type'] for t in types})} memory types in "
-                     f"{len(data['groups'])} BIST groups"),
+        ("memories", f"{_n(len(inst), 'instance')} of {_n(len({t['type'] for t in types}), 'memory type')} in "
+                     f"{_n(len(data['groups']), 'BIST group')}"),
         ("faults", data["faults"]), ("pairs", data["pairs"]),
         ("power budget", f"{_w(s['budget_w'])} (peak drawn {_w(s['peak_w'])})"),
         ("schedule", f"{status}; {s['solver']} (solved in {s['solve_seconds']:.2g} s)"),
@@ -145,3 +145,8 @@ def plan_html(data: dict) -> str:
 def write_plan_report(data: dict, path, force: bool = False) -> None:
     """Write :func:`plan_html` atomically; an existing file is refused unless ``force``."""
     write_file(path, plan_html(data), force=force)
+
+
+def _n(count: int, noun: str) -> str:
+    """``1 memory type``, ``20 memory types``."""
+    return f"{count:,} {noun}{'' if count == 1 else 's'}"
