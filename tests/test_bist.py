@@ -502,7 +502,7 @@ def test_cli_program_only(tmp_path, cli):
     (("March C-", "--words", "12", "--mux", "3", "--backgrounds", "rows"), "mux"),
     (("March C-", "--words", "12", "--order", "gray"), "power-of-two"),
     (("March C-", "--top", "9lives"), "--top"),
-    (("March C-", "--bits", "0"), "bits per word"),
+    (("March C-", "--bits", "0"), "--bits: 0 is outside 1 to 1,024"),
     (("{⇑(r2)}",), "error"),
     (("{⇕(w0); ⇑(r1)}",), "error"),
     (("March C-", "--latency", "0"), "latency"),

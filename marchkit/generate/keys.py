@@ -286,6 +286,10 @@ def discover(selection, mem, scope):
                 cell_struct[(AFIRST, VFIRST, SAME)[s]][rest // P, rest % P] = True
     wpid = wpat = None
     for kind in selection.kinds:
+        if kind.family == "rules" and (kind.cls.startswith("LF")
+                                       or (kind.arity == 2 and any(r.then is not None for r in kind.rules))):
+            unsupported.append(kind)     # linked and two-cell dynamic faults: graded, not searched yet
+            continue
         if kind.family == "rules":
             if kind.arity == 1:
                 for p in sorted(set(cpid.tolist())):
