@@ -28,7 +28,7 @@ from marchkit.faults.dram import (DDR3_FIRST_ERROR, LPDDR4_PER_AGGRESSOR, distur
 from marchkit.grade import grade
 from marchkit.model import make_memory, schedule
 from marchkit.model.dram import RefreshPlan, refresh_period_cycles
-from marchkit.notation import Delay, Element, MarchTest, Op, check_test, parse_notation
+from marchkit.notation import Delay, Element, Hammer, MarchTest, Op, check_test, parse_notation
 from marchkit.notation.printer import format_notation
 
 SETTINGS = settings(max_examples=60, deadline=None, print_blob=True,
@@ -100,9 +100,13 @@ LONG = (1, 1, 1, 2, 3, 5, 40, 70, 257, 3000)
 
 
 @st.composite
-def dram_tests(draw, max_elements=5):
+def dram_tests(draw, max_elements=5, hammers=False):
     items, state = [], None
     for _ in range(draw(st.integers(2, max_elements))):
+        if hammers and draw(st.integers(0, 2)) == 0:
+            offs = tuple(draw(st.lists(st.integers(-3, 3), min_size=1, max_size=4)))
+            items.append(Hammer(draw(st.sampled_from(("up", "down"))), offs,
+                                draw(st.sampled_from((1, 2, 3, 5, 40, 257)))))
         order = draw(st.sampled_from(("up", "down", "any", "up")))
         ops = []
         for _ in range(draw(st.integers(1, 3))):
@@ -201,6 +205,45 @@ def test_long_repeats_equal_the_literal_run_for_other_families(data):
             assert rr.detected == sum(mine)
 
 
+@SETTINGS
+@given(st.data())
+def test_hammer_items_agree_with_the_oracle(data):
+    """Hammer items (activations of rows at offsets, rounds in closed form) on both DRAM
+    families: fast path against the oracle that runs every activation."""
+    test = data.draw(dram_tests(hammers=True), label="test")
+    mem = data.draw(dram_memories(), label="memory")
+    note(format_notation(test) + f" refresh={mem.refresh} {mem.refresh_scheme} page={mem.page} "
+         f"during={mem.refresh_during_delays} mux={mem.mux} order={mem.order}")
+    sched = schedule(test, mem)
+    P = refresh_period_cycles(mem)
+    rc = max(mem.read_cycles, mem.write_cycles)
+    m = max((len(h.offsets) for h in test.hammers), default=1)
+    marks = sorted({3, 4, 7, 9, 30, 100, 1000, 20_000, P - 1, P, P + 1, sched.cycles + 1} - {0, -1, 1, 2})
+    taus = [Fraction(c) / mem.clock_hz for c in data.draw(
+        st.lists(st.sampled_from([c for c in marks if c > m * rc]), min_size=1, max_size=2, unique=True))]
+    ns = data.draw(st.lists(st.sampled_from([n for n in (1, 2, 3, 4, 5, 39, 40, 41, 70, 256, 3000) if n >= m]),
+                            min_size=1, max_size=2, unique=True))
+    ref = _agree(test, mem, retention_kinds(taus) + disturb_kinds(ns))
+    note(f"detected {sum(r[0] for r in ref)} of {len(ref)}")
+
+
+@SETTINGS
+@given(st.data())
+def test_hammer_items_leave_the_cell_families_alone(data):
+    """An activation reads and writes no cell: the time-independent families give the
+    reference's verdicts with hammer items in the test."""
+    test = data.draw(dram_tests(max_elements=4, hammers=True), label="test")
+    mem = data.draw(dram_memories(), label="memory")
+    sel = select_faults("static,classic,dynamic")
+    kinds = data.draw(st.lists(st.sampled_from(sel.kinds), min_size=1, max_size=4, unique_by=lambda k: k.text))
+    scope = parse_pairs("neighbours")
+    insts = [i for k in kinds for i in enumerate_instances(k, mem, scope)][:200]
+    sched = schedule(test, mem)
+    ref = reference_verdicts(test, mem, insts, sched, limit=10**10)
+    fast = Engine(test, mem, sched).instance_verdicts(insts)
+    assert [r[0] for r in ref] == [f[0] for f in fast]
+
+
 # ---------------------------------------------------------------------------------------
 # checks against outside sources
 
@@ -262,10 +305,58 @@ def test_hammer_below_threshold_never_flips_at_threshold_does(threshold, source,
 
 def test_open_page_single_row_repeats_do_not_hammer():
     # common practice, no source: with the row left open, repeated accesses to it are one
-    # activation; the hammer needs two rows in turn (here: two elements cannot do it)
+    # activation; the hammer needs two rows in turn (a hammer item, below)
     mem = make_memory(1024, 1, mux=32, clock="1GHz", refresh="64ms", page="open")
     r = grade(parse_notation("{⇑(w0); ⇑(r0^10000); ⇑(r0)}"), mem, faults="disturb", thresholds=[5000])
     assert r.total.detected == 0
+    # the same with a hammer item on one row: still one activation per row
+    r = grade(parse_notation("{⇑(w0); ⇑hammer(+1)^10000; ⇑(r0)}"), mem, faults="disturb", thresholds=[5000])
+    assert r.total.detected == 0
+    # with a far row in turn, every round activates the aggressor again (single-sided hammer)
+    r = grade(parse_notation("{⇑(w0); ⇑hammer(+1,+9)^5000; ⇑(r0)}"), mem, faults="disturb", thresholds=[5000])
+    assert {k.kind.text: k.detected for k in r.kinds}["disturb0(N=5000)"] == mem.cells
+
+
+# JEDEC DDR standards: every row refreshed within 64 ms at ≤ 85 °C, 32 ms above
+@pytest.mark.parametrize("window_ms", [64, 32])
+@pytest.mark.parametrize("threshold,source", [
+    (DDR3_FIRST_ERROR, "Kim et al., ISCA 2014: about 139 K activations to the first error (DDR3)"),
+    (LPDDR4_PER_AGGRESSOR, "Kim et al., ISCA 2020: as few as 4.8 K per aggressor row (LPDDR4)"),
+])
+def test_double_sided_hammer_on_an_open_page(threshold, source, window_ms):
+    # an invented 4 K x 8 macro, 64 rows of 64 words, 1 GHz, open page: for each row r the
+    # hammer item activates r - 1 and r + 1 in turn N times each, in far less than one
+    # refresh window; every victim sees N activations of a neighbour between two of its own
+    # activations (row 1 sees N + 1: the reading element opens row 0 once more before row 1),
+    # so the cells holding 0 flip iff a neighbour reaches the threshold
+    mem = make_memory(4096, 8, mux=64, clock="1GHz", refresh=f"{window_ms}ms", page="open")
+    for n, flips in ((threshold - 2, False), (threshold, True)):
+        t = parse_notation(f"{{⇑(w0); ⇑hammer(-1,+1)^{n}; ⇑(r0)}}")
+        sched = schedule(t, mem)
+        assert sched.cycles < refresh_period_cycles(mem)          # the whole test in one window
+        r = grade(t, mem, faults="disturb", thresholds=[threshold])
+        kinds = {k.kind.text: k.detected for k in r.kinds}
+        assert kinds[f"disturb0(N={threshold})"] == (mem.cells if flips else 0), (source, n)
+        assert kinds[f"disturb1(N={threshold})"] == 0               # the cells hold 0
+
+
+def test_refresh_faster_than_the_hammer_protects():
+    # common practice, no source: between two refreshes of the victim row (every P) a
+    # neighbour is activated at most P / row cycle times, so a threshold above that is never
+    # reached however long the hammer lasts
+    mem = make_memory(256, 1, mux=16, clock="1GHz", refresh="20us", page="open")  # P = 20 000 cycles
+    t = parse_notation("{⇑(w0); ⇑hammer(-1,+1)^100000; ⇑(r0)}")
+    assert grade(t, mem, faults="disturb", thresholds=[10_001]).total.detected == 0
+    assert grade(t, mem, faults="disturb", thresholds=[4_000]).total.detected > 0
+
+
+def test_hammer_item_limits_are_checked():
+    mem = make_memory(256, 1, mux=16, clock="1GHz", refresh="1ms")
+    t = parse_notation("{⇑(w0); ⇑hammer(-1,0,+1)^10; ⇑(r0)}")
+    with pytest.raises(FaultSpecError, match="below the 3 rows"):
+        grade(t, mem, faults="disturb", thresholds=[2])
+    with pytest.raises(FaultSpecError, match="one round of the hammer item"):
+        grade(t, mem, faults="retention", retention=[Fraction(2, 10**9)])
 
 
 def test_refresh_inside_a_long_hammer_resets_the_count():
@@ -409,6 +500,38 @@ def test_cycle_by_cycle_formats_refuse_hammer_repeats(tmp_path, cli):
                          "-o", str(tmp_path / "h.stil"))
     assert code == 0, err
     assert (tmp_path / "h.stil").stat().st_size < 1_000_000            # grows with words, not repeats
+
+
+def test_stil_writes_a_hammer_item_as_loops_and_reads_back(tmp_path):
+    from marchkit.export import Plan, export
+
+    mem = make_memory(32, 2, mux=4, read_cycles=2, refresh="1ms", clock="100MHz")    # 8 rows
+    t = parse_notation("{⇑(w0); ⇓hammer(-1,+1)^70000; ⇑(r0)}")
+    out = tmp_path / "h.stil"
+    export(t, mem, str(out))
+    got = _stil_loops(out)
+    assert sum(n for n, _ in got) == Plan(t, mem).cycles == schedule(t, mem).cycles \
+        == 32 * 1 + 8 * 2 * 70000 * 2 + 32 * 2    # w0: 1 cycle; a row cycle: 2
+    hammer = [v for n, v in got if n == 70000]
+    assert len(hammer) == 8 * 2 * 2                     # 8 rows, 2 activations, 2 cycles each
+    # ⇓ from the last row: row 7 activates rows 6 and 0 (wrapping), read of their first word
+    first = dict(hammer[0])
+    assert first["ADDR"] == format(6 * 4, "05b") and first["RE"] == "1" and set(first["DOUT"]) == {"X"}
+    assert dict(hammer[2])["ADDR"] == format(0, "05b")
+    assert out.stat().st_size < 20_000
+
+
+def test_hammer_items_are_refused_where_they_cannot_go(tmp_path, cli):
+    text = "{⇑(w0); ⇑hammer(-1,+1)^10; ⇑(r0)}"
+    for fmt in ("csv", "jsonl", "vcd", "hex"):
+        out = tmp_path / f"p.{fmt}"
+        code, _, err = cli("export", text, "--words", "8", "--format", fmt, "-o", str(out))
+        assert code == 2 and "export it as stil" in err, (fmt, err)
+        assert not out.exists()
+    code, _, err = cli("bist", text, "--words", "8", "-o", str(tmp_path / "b"))
+    assert code == 2 and "hammer item" in err, err
+    code, out, err = cli("check", "{⇕hammer(+1)}")
+    assert code == 2 and "not ⇕" in (out + err)
 
 
 def test_the_shipped_dram_example_and_demo(cli):

@@ -274,6 +274,9 @@ def lower(test, mem, transparent: bool = False) -> BistIR:
     from ..model import schedule, with_changes
     from ..notation import Delay, format_notation
 
+    if test.hammers:
+        raise BistError("the controller has no row-activation step, so a test with a hammer item cannot "
+                        "be built into it; grade the test, or export it as stil for a tester")
     order = lower_order(mem)
     if transparent:
         from ..model import background_names

@@ -277,8 +277,14 @@ def show_result(res, con, primitives=False, weights=None, score=None) -> None:
         for cls, text in examples:
             con.print(f"  [bold]{cls}[/bold]  {text}")
     delays = len(t.delays)
+    acts = 0
+    if t.hammers:
+        from ..model import schedule
+
+        acts = sum(s.cycles // s.row_cycle for s in schedule(t, res.memory).segments if s.hammer is not None)
     con.print(
-        f"cost    {t.ops_per_cell} ops per address per run · {res.ops:,} operations · {res.cycles:,} cycles"
+        f"cost    {t.ops_per_cell} ops per address per run · {res.ops:,} operations"
+        + (f" · {acts:,} hammer activations" if acts else "") + f" · {res.cycles:,} cycles"
         f" · {fmt_time(res.seconds)} at {fmt_clock(res.memory.clock_hz)}"
         + (f" (delays included: {delays} per run)" if delays else "")
     )

@@ -77,6 +77,10 @@ class OracleFault:
     def visit(self, run, w):
         pass
 
+    def activate(self, run, row, t):
+        """A hammer item activates physical row ``row`` at cycle ``t`` (no cell is read or
+        written); only the DRAM families react."""
+
     def access(self, run, w, kind, data, t):  # pragma: no cover - every oracle overrides it
         raise NotImplementedError
 
@@ -164,11 +168,31 @@ class Run:
                             return Event(si, w, k, self.seq)
         return None
 
+    def run_hammer(self, si):
+        """Segment ``si``, a hammer item: every activation, literally, in time order (the
+        item visits the physical rows, ⇑ from row 0)."""
+        ctx = self.ctx
+        seg = ctx.sched.segments[si]
+        h = seg.hammer
+        R = ctx.mem.rows
+        rc = seg.row_cycle
+        fault = self.fault
+        t = seg.start
+        for r0 in (range(R) if seg.order == "up" else range(R - 1, -1, -1)):
+            targets = [(r0 + k) % R for k in h.offsets]
+            for _ in range(h.count):
+                for r in targets:
+                    fault.activate(self, r, t)
+                    t += rc
+
     def run(self, any_up=None):
         """First detecting :class:`Event` of the whole test, or None; ⇕ elements run as ⇑
         unless ``any_up`` (one flag per ⇕ element) says otherwise."""
         ctx = self.ctx
         for si, seg in enumerate(ctx.sched.segments):
+            if seg.hammer is not None:
+                self.run_hammer(si)
+                continue
             if seg.element is None:
                 continue
             up = seg.order != "down"
@@ -222,6 +246,13 @@ def undetected_survives(ctx, inst, max_states=MAX_STATES) -> bool:
         states.setdefault(r.state(), r)
     last_run = ctx.sched.segments[-1].run if ctx.sched.segments else 0
     for si, seg in enumerate(ctx.sched.segments):
+        if seg.hammer is not None:
+            nxt = {}
+            for r in states.values():
+                r.run_hammer(si)
+                nxt.setdefault(r.state(), r)
+            states = nxt
+            continue
         if seg.element is None:
             continue
         nxt = {}

@@ -133,11 +133,50 @@ def _last_valid(values, group_start_idx):
 def _groups(keys):
     """Start index of each element's group (keys sorted)."""
     if keys.size == 0:
-        return np.empty(0, np.int64)
+        return np.empty(0, np.int64), np.empty(0, bool)
     start = np.ones(keys.size, bool)
     start[1:] = keys[1:] != keys[:-1]
     gidx = np.where(start, np.arange(keys.size), 0)
     return np.maximum.accumulate(gidx), start
+
+
+def _split_at_slots(plan, vv, base, tl):
+    """Windows [base, tl] of victim rows ``vv`` split at the rows' refresh slots in (base, tl]:
+    (source window of each piece, index of the piece in its window (0: the first; > 0: it
+    starts at a slot), piece start, piece end (exclusive)), all (Q,) int64."""
+    if plan.period:
+        P = plan.period
+        off = plan.offsets[vv]
+
+        def F(t):
+            return np.where(t >= off, (t - off) // P + 1, 0)
+
+        m = F(tl) - F(base)
+    else:
+        m = np.zeros(vv.size, np.int64)
+    rep = np.repeat(np.arange(vv.size), m + 1)
+    jp = np.arange(rep.size) - np.repeat(np.cumsum(m + 1) - (m + 1), m + 1)
+    pb, ptl = base[rep], tl[rep]
+    if plan.period:
+        offp = plan.offsets[vv[rep]]
+        k0 = np.where(pb >= offp, (pb - offp) // P + 1, 0)
+        ps = np.where(jp == 0, pb, offp + (k0 + jp - 1) * P)
+        pe = np.where(jp == m[rep], ptl + 1, offp + (k0 + jp) * P)
+    else:
+        ps, pe = pb, ptl + 1
+    return rep, jp, ps, pe
+
+
+def _sorted_events(plan, ev_v, ev_s, ev_e, ev_w, ev_piece, ev_slot, ev_blk):
+    """The events of one side sorted by (victim row, start), with group starts and each
+    event's latest refresh of its row at or before its start: the layout of
+    :meth:`DramEngine._dist_apply`."""
+    o = np.lexsort((ev_s, ev_v))
+    ev_v, ev_s, ev_e, ev_w = ev_v[o], ev_s[o], ev_e[o], ev_w[o]
+    ev_piece, ev_slot, ev_blk = ev_piece[o], ev_slot[o], ev_blk[o]
+    gstart, is_start = _groups(ev_v)
+    return (ev_v, ev_s, ev_e, ev_w, ev_piece, ev_slot, ev_blk, gstart, is_start,
+            plan.last_refresh(ev_v, ev_s))
 
 
 def _copies_in(seg, base, a, b):
@@ -198,9 +237,18 @@ class DramEngine:
         U = p.rows if row_mode else p.n
         unit_row = np.arange(U, dtype=np.int64) if row_mode else p.row
         x = kind.drf_value
+        ham = None
+        if row_mode:
+            for seg in p.sched.segments:
+                if seg.hammer is not None and tau <= seg.per_address // seg.hammer.count:
+                    raise FaultSpecError(
+                        f"retention time {kind.text} is {tau} clock cycle(s), not longer than one round of "
+                        f"the hammer item ({seg.per_address // seg.hammer.count} cycles); retention times are "
+                        "meant to be far longer")
+            ham = lambda seg, st: self._ret_hammer(seg, st, tau)        # noqa: E731
         return self._scan(kind, lambda seg, tf, seq, st: self._ret_seg(seg, tf, seq, st, unit, unit_row, tau),
                           lambda: {"last": np.zeros(U, np.int64), "fl": np.full(U, -1, np.int64)}, x,
-                          None if row_mode else tau)
+                          None if row_mode else tau, ham)
 
     def _blocks(self, kind, seq, unit):
         """Consecutive visits of one unit (row or word) merged into blocks, in visiting
@@ -246,6 +294,158 @@ class DramEngine:
         flw[seq] = flb[blk]
         return flw
 
+    def _ret_hammer(self, seg, st, tau):
+        """A hammer segment on a DRAM: each activation restores its row.  The restores of a
+        row in one visit are one event from its first to its last activation (the stretches
+        between them are at most one round, shorter than τ)."""
+        p = self.p
+        key = ("reth", seg.start)
+        if key not in p.cache:
+            rows, base, _, _ = self._hammer_rows(seg)
+            n, m = rows.shape
+            rc = seg.row_cycle
+            M = m * rc
+            N = seg.hammer.count
+            j = np.arange(m, dtype=np.int64)
+            # per visit and distinct row: first and last position of the row in a round
+            code = np.arange(n, dtype=np.int64)[:, None] * p.rows + rows
+            uq, inv = np.unique(code, return_inverse=True)
+            inv = inv.reshape(n, m)
+            jmin = np.full(uq.size, m, np.int64)
+            jmax = np.full(uq.size, -1, np.int64)
+            np.minimum.at(jmin, inv.ravel(), np.broadcast_to(j, (n, m)).ravel())
+            np.maximum.at(jmax, inv.ravel(), np.broadcast_to(j, (n, m)).ravel())
+            vis, row = uq // p.rows, uq % p.rows
+            a = base[vis] + jmin * rc
+            b = base[vis] + (N - 1) * M + jmax * rc
+            o = np.lexsort((a, row))
+            row, a, b = row[o], a[o], b[o]
+            gstart, is_start = _groups(row)
+            p.cache[key] = (row, a, b, gstart, is_start)
+        row, a, b, gstart, is_start = p.cache[key]
+        if row.size == 0:
+            return
+        prev = np.empty_like(b)
+        prev[1:] = b[:-1]
+        prev[is_start] = st["last"][row[is_start]]
+        gap = p.plan.max_gap(row, prev, a)
+        cross = np.where(gap >= tau, a, -1)
+        cross = np.where(is_start, np.maximum(cross, st["fl"][row]), cross)
+        fl = _last_valid(cross, gstart)
+        end = np.ones(row.size, bool)
+        end[:-1] = row[1:] != row[:-1]
+        st["last"][row[end]] = b[end]
+        st["fl"][row[end]] = fl[end]
+
+    # ---- hammer items ----------------------------------------------------------------------
+    def _hammer_rows(self, seg):
+        """The activations of a hammer segment, visit by visit in visiting order (a hammer
+        item visits the physical rows: ``V`` visits, one per row): ``rows`` (V, m) int64, the
+        row each activation of a round opens; ``base`` (V,) int64, the first cycle of each visit; ``act_first`` / ``act_steady`` (n, m) bool, whether the
+        activation really opens its row in the first round / in the later rounds (always on a
+        closed page; on an open page only when another row is open — the first activation of
+        the first visit follows the row left open before the segment: ``act_first[0, 0]`` is
+        True here and corrected by the caller)."""
+        p = self.p
+        key = ("hrows", seg.start)
+        if key not in p.cache:
+            R = p.rows
+            seq = np.arange(R, dtype=np.int64) if seg.order == "up" else np.arange(R - 1, -1, -1, dtype=np.int64)
+            offs = np.asarray(seg.hammer.offsets, np.int64)
+            rows = (seq[:, None] + offs[None, :]) % R
+            base = seg.start + np.arange(R, dtype=np.int64) * seg.per_address
+            if p.mem.page == "closed":
+                act_first = act_steady = np.ones(rows.shape, bool)
+            else:
+                act_steady = rows != np.roll(rows, 1, axis=1)
+                act_first = act_steady.copy()
+                act_first[1:, 0] = rows[1:, 0] != rows[:-1, -1]
+                act_first[0, 0] = True
+            p.cache[key] = (rows, base, act_first, act_steady)
+        return p.cache[key]
+
+    def _dist_hammer(self, seg, st, N):
+        """A hammer segment for read disturb: the events of every victim row (its own
+        activations reset its counts; the activations of a neighbour row add to that side)."""
+        p = self.p
+        rows, _, _, _ = self._hammer_rows(seg)
+        m = rows.shape[1]
+        if N < m:
+            raise FaultSpecError(
+                f"disturb threshold {N} is below the {m} rows the hammer item cycles through; the closed "
+                "form needs a threshold of at least that many activations (use --engine reference)")
+        first_act = True if p.mem.page == "closed" else bool(rows[0, 0] != st["open"])
+        st["open"] = int(rows[-1, -1])
+        for side, d in ((0, 1), (1, -1)):
+            key = ("disth", seg.start, side, first_act)
+            if key not in p.cache:
+                p.cache[key] = self._hammer_layout(seg, d, first_act)
+            self._dist_apply(p.cache[key], st, side, N)
+
+    def _hammer_layout(self, seg, d, first_act):
+        """Events of every victim row v on one side (aggressor row v − d) in a hammer segment,
+        sorted by (row, time), in the layout :meth:`_dist_apply` reads.  Per visit that
+        activates v: the aggressor's activations before v's first activation (a piece), v's
+        activations (a reset: between two of them at most m − 1 aggressor activations, below
+        the threshold), the aggressor's activations after v's last one (a piece); per visit
+        that activates the aggressor only: one piece.  Pieces are split at v's refresh slots."""
+        p = self.p
+        rows, base, act_first, act_steady = self._hammer_rows(seg)
+        if not first_act:
+            act_first = act_first.copy()
+            act_first[0, 0] = False
+        n, m = rows.shape
+        R = p.rows
+        rc = seg.row_cycle
+        M = m * rc
+        N = seg.hammer.count
+        Pa = seg.per_address
+        # (visit, victim) pairs: victims whose own row or aggressor row the visit opens
+        cand = np.concatenate([rows, rows + d], axis=1)
+        vis = np.repeat(np.arange(n, dtype=np.int64), 2 * m)
+        v = cand.ravel()
+        ok = (v >= 0) & (v < R) & (v - d >= 0) & (v - d < R)
+        code = np.unique(vis[ok] * R + v[ok])
+        P, V = code // R, code % R
+        X = V - d
+        rp = rows[P]
+        isX, isV = rp == X[:, None], rp == V[:, None]
+        aF, aS = act_first[P], act_steady[P]
+        xF, vF = isX & aF, isV & aF
+        xS, vS = (isX & aS, isV & aS) if N > 1 else (np.zeros_like(isX), np.zeros_like(isV))
+        b = base[P]
+        has_vF, has_vS = vF.any(axis=1), vS.any(axis=1)
+        t_first = np.where(has_vF, b + vF.argmax(axis=1) * rc, b + M + vS.argmax(axis=1) * rc)
+        t_last = np.where(has_vS, b + (N - 1) * M + (m - 1 - vS[:, ::-1].argmax(axis=1)) * rc,
+                          b + (m - 1 - vF[:, ::-1].argmax(axis=1)) * rc)
+        vact = has_vF | has_vS
+        end = b + Pa
+        # pieces [ps, pe): before the first / after the last activation of v, or the whole visit
+        a_s = np.concatenate([b, (t_last + 1)[vact]])
+        a_e = np.concatenate([np.where(vact, t_first, end), end[vact]])
+        a_q = np.concatenate([np.arange(P.size), np.nonzero(vact)[0]])
+        keep = a_e > a_s
+        a_s, a_e, a_q = a_s[keep], a_e[keep], a_q[keep]
+        rep, jp, ps, pe = _split_at_slots(p.plan, V[a_q], a_s, a_e - 1)
+        q = a_q[rep]
+        bq = b[q]
+        w = np.zeros(q.size, np.int64)
+        for j in range(m):
+            t0 = bq + j * rc
+            w += xF[q, j] & (t0 >= ps) & (t0 < pe)
+            lo = np.maximum(1, -((t0 - ps) // M))          # first round i ≥ 1 at or after ps
+            hi = np.minimum(N - 1, (pe - 1 - t0) // M)
+            w += np.where(xS[q, j], np.maximum(0, hi - lo + 1), 0)
+        qb = np.nonzero(vact)[0]
+        ev_v = np.concatenate([V[q], V[qb]])
+        ev_s = np.concatenate([ps, t_first[qb]])
+        ev_e = np.concatenate([pe - 1, t_last[qb]])
+        ev_w = np.concatenate([w, np.zeros(qb.size, np.int64)])
+        ev_piece = np.concatenate([np.ones(q.size, bool), np.zeros(qb.size, bool)])
+        ev_slot = np.concatenate([jp > 0, np.zeros(qb.size, bool)])
+        ev_blk = np.full(ev_v.size, -1, np.int64)
+        return _sorted_events(p.plan, ev_v, ev_s, ev_e, ev_w, ev_piece, ev_slot, ev_blk)
+
     # ---- disturb -------------------------------------------------------------------------
     def disturb_first(self, kind):
         N = kind.threshold
@@ -256,7 +456,7 @@ class DramEngine:
                     "fl": np.full((2, rows), -1, np.int64), "open": -1}
 
         return self._scan(kind, lambda seg, tf, seq, st: self._dist_seg(seg, tf, seq, st, N), fresh,
-                          kind.drf_value)
+                          kind.drf_value, ham_fn=lambda seg, st: self._dist_hammer(seg, st, N))
 
     def _dist_seg(self, seg, tf, seq, st, N):
         p = self.p
@@ -272,31 +472,39 @@ class DramEngine:
             key = ("dist", seg.start, int(seq[0]), int(seq[-1]), side, first_act)
             if key not in p.cache:
                 p.cache[key] = self._dist_layout(seg, br, p0, p1, first_act, d)
-            ev_v, ev_s, ev_e, ev_w, ev_piece, ev_slot, ev_blk, gstart, is_start, last_ref = p.cache[key]
-            prev_end = np.empty_like(ev_e)
-            prev_end[1:] = ev_e[:-1]
-            prev_end[is_start] = st["ct"][side][ev_v[is_start]]
-            refreshed = last_ref > prev_end
-            reset = (~ev_piece) | ev_slot | refreshed
-            c_incl = np.cumsum(ev_w)
-            c_excl = c_incl - ev_w
-            anchor_pt = reset | is_start
-            anchor = np.maximum.accumulate(np.where(anchor_pt, np.arange(ev_v.size), 0))
-            carry = np.where(reset[anchor], 0, st["cnt"][side][ev_v[anchor]])
-            count = c_incl - c_excl[anchor] + carry
-            cross = np.where(ev_piece & (count >= N), ev_e, -1)
-            cross = np.where(is_start, np.maximum(cross, st["fl"][side][ev_v]), cross)
-            fl = _last_valid(cross, gstart)
-            end = np.ones(ev_v.size, bool)
-            end[:-1] = ev_v[1:] != ev_v[:-1]
-            st["cnt"][side][ev_v[end]] = count[end]
-            st["ct"][side][ev_v[end]] = ev_e[end]
-            st["fl"][side][ev_v[end]] = fl[end]
+            fl = self._dist_apply(p.cache[key], st, side, N)
+            ev_blk = p.cache[key][6]
             isb = ev_blk >= 0
             flb[ev_blk[isb]] = np.maximum(flb[ev_blk[isb]], fl[isb])
         flw = np.empty(n, np.int64)
         flw[seq] = flb[blk]
         return flw
+
+    def _dist_apply(self, layout, st, side, N):
+        """Run the events of one side (a layout of :meth:`_dist_layout` or
+        :meth:`_hammer_layout`) from the carried state ``st``, updating it; the latest
+        crossing up to each event (-1: none) (E,) int64."""
+        ev_v, ev_s, ev_e, ev_w, ev_piece, ev_slot, ev_blk, gstart, is_start, last_ref = layout
+        prev_end = np.empty_like(ev_e)
+        prev_end[1:] = ev_e[:-1]
+        prev_end[is_start] = st["ct"][side][ev_v[is_start]]
+        refreshed = last_ref > prev_end
+        reset = (~ev_piece) | ev_slot | refreshed
+        c_incl = np.cumsum(ev_w)
+        c_excl = c_incl - ev_w
+        anchor_pt = reset | is_start
+        anchor = np.maximum.accumulate(np.where(anchor_pt, np.arange(ev_v.size), 0))
+        carry = np.where(reset[anchor], 0, st["cnt"][side][ev_v[anchor]])
+        count = c_incl - c_excl[anchor] + carry
+        cross = np.where(ev_piece & (count >= N), ev_e, -1)
+        cross = np.where(is_start, np.maximum(cross, st["fl"][side][ev_v]), cross)
+        fl = _last_valid(cross, gstart)
+        end = np.ones(ev_v.size, bool)
+        end[:-1] = ev_v[1:] != ev_v[:-1]
+        st["cnt"][side][ev_v[end]] = count[end]
+        st["ct"][side][ev_v[end]] = ev_e[end]
+        st["fl"][side][ev_v[end]] = fl[end]
+        return fl
 
     def _dist_layout(self, seg, br, p0, p1, first_act, d):
         """The events of every victim row on one side in one segment, sorted by (row, time);
@@ -310,29 +518,9 @@ class DramEngine:
         tl_b = seg.start + p1 * Pa + Pa - seg.runs[-1].each
         v = br + d
         vi = np.nonzero((v >= 0) & (v < p.rows))[0]
-        vv = v[vi]
-        if plan.period:
-            P = plan.period
-            off = plan.offsets[vv]
-
-            def F(t):
-                return np.where(t >= off, (t - off) // P + 1, 0)
-
-            m = F(tl_b[vi]) - F(base_b[vi])
-        else:
-            m = np.zeros(vi.size, np.int64)
-        rep = np.repeat(np.arange(vi.size), m + 1)
-        jp = np.arange(rep.size) - np.repeat(np.cumsum(m + 1) - (m + 1), m + 1)
-        pv = vv[rep]
+        rep, jp, ps, pe = _split_at_slots(plan, v[vi], base_b[vi], tl_b[vi])
+        pv = v[vi][rep]
         pb = base_b[vi][rep]
-        ptl = tl_b[vi][rep]
-        if plan.period:
-            offp = plan.offsets[pv]
-            k0 = np.where(pb >= offp, (pb - offp) // P + 1, 0)
-            ps = np.where(jp == 0, pb, offp + (k0 + jp - 1) * P)
-            pe = np.where(jp == m[rep], ptl + 1, offp + (k0 + jp) * P)
-        else:
-            ps, pe = pb, ptl + 1
         if first_act is None:
             # closed page: every copy activates; whole visits inside a piece count ops_per_visit
             ja = (ps - pb) // Pa
@@ -354,16 +542,13 @@ class DramEngine:
         ev_piece = np.concatenate([np.ones(pv.size, bool), np.zeros(nb, bool)])
         ev_slot = np.concatenate([jp > 0, np.zeros(nb, bool)])
         ev_blk = np.concatenate([np.full(pv.size, -1, np.int64), np.arange(nb, dtype=np.int64)])
-        o = np.lexsort((ev_s, ev_v))
-        ev_v, ev_s, ev_e, ev_w = ev_v[o], ev_s[o], ev_e[o], ev_w[o]
-        ev_piece, ev_slot, ev_blk = ev_piece[o], ev_slot[o], ev_blk[o]
-        gstart, is_start = _groups(ev_v)
-        return (ev_v, ev_s, ev_e, ev_w, ev_piece, ev_slot, ev_blk, gstart, is_start,
-                plan.last_refresh(ev_v, ev_s))
+        return _sorted_events(plan, ev_v, ev_s, ev_e, ev_w, ev_piece, ev_slot, ev_blk)
 
     # ---- the scan shared by both families ------------------------------------------------
-    def _scan(self, kind, seg_fn, fresh, x, tau_word=None):
-        """(detected (n, B), canonical first event code (n, B), maxk)."""
+    def _scan(self, kind, seg_fn, fresh, x, tau_word=None, ham_fn=None):
+        """(detected (n, B), canonical first event code (n, B), maxk).  ``seg_fn`` updates the
+        state of an element segment and returns each word's latest crossing; ``ham_fn``
+        updates it for a hammer segment (no word is visited: nothing decays there)."""
         p = self.p
         detected = np.ones((p.n, p.C), bool)
         canon = None
@@ -376,6 +561,10 @@ class DramEngine:
                 first = np.full((p.n, p.C), -1, np.int64)
                 st = fresh()
                 for si, seg in enumerate(p.sched.segments):
+                    if seg.hammer is not None:
+                        if ham_fn is not None:
+                            ham_fn(seg, st)
+                        continue
                     if seg.element is None:
                         continue
                     tf, seq = p.visit_start(seg, p.seg_up(seg, any_up))

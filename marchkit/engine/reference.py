@@ -37,7 +37,8 @@ def reference_cost(test, sched, n_instances: int) -> int:
     """Op-steps the reference needs for ``n_instances`` (4 initial values at most; a ⇕
     element runs each carried state both ways, counted as 2 more runs)."""
     n_any = sum(e.order == "any" for e in test.elements)
-    return n_instances * max(1, sched.ops) * 4 * (3 if n_any else 1)
+    acts = sum(s.cycles // s.row_cycle for s in sched.segments if s.hammer is not None)
+    return n_instances * max(1, sched.ops + acts) * 4 * (3 if n_any else 1)
 
 
 def reference_verdicts(test, mem, instances, sched=None, limit=REFERENCE_LIMIT):

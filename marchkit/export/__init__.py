@@ -129,6 +129,10 @@ def export(test, mem, out: str, fmt: str | None = None, *, physical: bool = Fals
         raise OutputError("a stuck-at cell can only be injected with --format hex (into its SRAM model)")
     check_stuck(mem, stuck)
     plan = Plan(test, mem, physical=physical)
+    if plan.looped and fmt != "stil" and plan.test.hammers:
+        raise OutputError(
+            f"this test has a hammer item ({plan.cycles:,} cycles in all); {fmt} writes every clock cycle — "
+            "export it as stil (its rounds become loops)")
     if plan.looped and fmt != "stil":
         longest = max(op.repeat for e in test.elements for op in e.ops)
         raise OutputError(

@@ -191,7 +191,8 @@ def write_stil(plan, f, **_) -> dict:
             f.write(f"    Ann {{* run {seg.run}: background {ann_text(plan.run_names[seg.run])} *}}\n".encode())
             last_run = seg.run
         if getattr(b, "looped", False):
-            v, lo = _write_looped(plan, seg, f, x_d, zero_d)
+            writer = _write_hammer if seg.element is None else _write_looped
+            v, lo = writer(plan, seg, f, x_d, zero_d)
             vectors += v
             loops += lo
             continue
@@ -227,6 +228,39 @@ def write_stil(plan, f, **_) -> dict:
         vectors += b.count
     f.write(b"}\n")
     return {"vectors": vectors, "loops": loops}
+
+
+def _write_hammer(plan, seg, f, x_d, zero_d):
+    """A hammer item, row by row: ``Loop count { … }`` around one round, each activation a
+    read of the first word of the target row (its data not compared)."""
+    from ..notation.printer import format_item
+
+    mem = plan.mem
+    A = plan.address_bits
+    pm = _pins(plan)
+    nbe = pm.byte_count(plan.bits)
+    tail = (f" {pm.chip_enable}=1;" if pm.chip_enable else "") + (f" BEN={'0' * nbe};" if nbe else "")
+    h = seg.hammer
+    f.write(f"    Ann {{* hammer {ann_text(format_item(h, ascii=True))}: each activation a read, not "
+            f"compared, {seg.row_cycle} cycle(s) *}}\n".encode())
+    R, mux = mem.rows, mem.mux
+    vectors = loops = 0
+    for p in range(R):
+        row = R - 1 - p if seg.down else p
+        one = []
+        for k in h.offsets:
+            tp = ((row + k) % R) * mux            # the first word of the target row
+            a = tp if plan.physical else int(mem.logical_word(tp))
+            addr = format(a, f"0{A}b")
+            one += [f"V {{ {pm.clock}=P; ADDR={addr}; DIN={zero_d}; {pm.write_enable}=0; "
+                    f"{pm.read_enable}=1;{tail} DOUT={x_d}; }}"] * seg.row_cycle
+        if h.count == 1:
+            f.write("".join(f"    {v}\n" for v in one).encode())
+        else:
+            f.write(f"    Loop {h.count} {{ {' '.join(one)} }}\n".encode())
+            loops += 1
+        vectors += len(one)
+    return vectors, loops
 
 
 def _write_looped(plan, seg, f, x_d, zero_d):

@@ -119,6 +119,32 @@ class LoopedPlan:
         return self.order == "down"
 
 
+@dataclass(frozen=True)
+class HammerPlan:
+    """A hammer item: row by row, ``count`` rounds of row activations.  On the memory's port
+    an activation is a read cycle (``row_cycle`` cycles) of the first word of the target row,
+    with its data not compared; only writers that can loop (STIL) take it."""
+
+    index: int
+    run: int
+    item: int
+    order: str
+    start: int
+    cycles: int
+    per_address: int
+    hammer: object           # notation.Hammer
+    row_cycle: int
+
+    element = None
+    is_delay = False
+    looped = True
+    runs = ()
+
+    @property
+    def down(self) -> bool:
+        return self.order == "down"
+
+
 @dataclass
 class LoopedBlock:
     """A whole looped element (see :class:`LoopedPlan`)."""
@@ -299,6 +325,10 @@ class Plan:
         determined = compared_reads(self.sched)
         segs = []
         for si, s in enumerate(self.sched.segments):
+            if s.hammer is not None:
+                segs.append(HammerPlan(si, s.run, s.item, s.order, s.start, s.cycles, s.per_address,
+                                       s.hammer, s.row_cycle))
+                continue
             if s.element is None:
                 item = test.items[s.item]
                 segs.append(DelayPlan(si, s.run, s.item, s.start, s.cycles, item.seconds))
@@ -365,7 +395,7 @@ class Plan:
 
     @property
     def looped(self) -> bool:
-        """Some element can only be written with loops (STIL)."""
+        """Some element (or a hammer item) can only be written with loops (STIL)."""
         return any(getattr(s, "looped", False) for s in self.segments)
 
     def describe(self) -> str:

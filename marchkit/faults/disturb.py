@@ -12,7 +12,8 @@ class DisturbFamily(Family):
     classes = ("disturb",)
     needs = {"disturb": "needs a neighbour row activated at least the threshold number of times "
                         "within one refresh window of the victim row (closed page: a repeated read "
-                        "such as r0^N; open page: two rows in turn), then a read of the victim"}
+                        "such as r0^N; open page: two rows in turn, as in ⇑hammer(-1,+1)^N), then a "
+                        "read of the victim"}
 
     def kinds(self, retention):
         return disturb_kinds((DEFAULT_THRESHOLD,))

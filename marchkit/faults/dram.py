@@ -110,7 +110,7 @@ def adapt_kinds(kinds, mem, test) -> tuple[FaultKind, ...]:
     """The SRAM data-retention kinds become the retention family on a DRAM (row restores,
     refresh) and when the test has hammer-length repeats (graded in closed form; the same
     verdicts as the SRAM semantics on a memory without refresh)."""
-    if not (mem.dram or long_repeats(test)):
+    if not (mem.dram or long_repeats(test) or test.hammers):
         return tuple(kinds)
     out = []
     for k in kinds:

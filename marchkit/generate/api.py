@@ -303,6 +303,9 @@ def shorten(test, mem, faults="static", pairs="neighbours", retention=None, *, p
 
     t0 = time.time()
     _check_limits(None, time_limit, 1)
+    if test.hammers:
+        raise GenerateError("shortening keeps elements and delays only: remove the hammer item from the test "
+                            "first (grade the hammer part on its own)")
     ensure_consistent(test)
     retention = retention or DEFAULT_RETENTION
     selection = select_faults(faults, retention) if isinstance(faults, str) else faults

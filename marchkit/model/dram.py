@@ -12,7 +12,9 @@ Refresh (``refresh``: the period P, rounded up to whole cycles):
   ``r·row_cycle + k·P``.
 
 A refresh takes no cycle of the test (the controller hides it between operations); it
-restores the row it refreshes and closes the open row.  With ``refresh_during_delays`` off
+restores the row it refreshes and leaves the open row open (for read disturb it resets the
+refreshed row's own counts and does not count as an activation of a neighbour).  With
+``refresh_during_delays`` off
 (the default, as in a retention test) a refresh that falls inside a delay of the test does
 not happen; slots outside delays are unchanged.
 
@@ -21,7 +23,7 @@ period must leave room to refresh every row (``P ≥ rows × row cycle``).
 
 Page policy (``page``): ``closed`` — every access activates its row (precharge after each
 access); ``open`` — the row stays open after an access, and an access activates its row only
-when another row (or none, after a refresh) is open.  One bank: the whole array.
+when another row (or none, at the start) is open.  One bank: the whole array.
 """
 
 from __future__ import annotations
@@ -124,7 +126,7 @@ def suspended_windows(mem, sched) -> list[tuple[int, int]]:
     unless ``refresh_during_delays``)."""
     if mem.refresh_during_delays:
         return []
-    return [(s.start, s.start + s.cycles) for s in sched.segments if s.element is None and s.cycles]
+    return [(s.start, s.start + s.cycles) for s in sched.segments if s.is_delay and s.cycles]
 
 
 class RefreshPlan:

@@ -51,6 +51,16 @@ class Segment:
     per_address: int            # cycles one address takes (0 for a delay)
     runs: tuple[OpRun, ...]     # the operations of one address visit, repeats as counts
     cycles: int                 # cycles of the whole segment
+    hammer: object = None       # the notation's Hammer item for a hammer segment (element None)
+
+    @property
+    def is_delay(self) -> bool:
+        return self.element is None and self.hammer is None
+
+    @property
+    def row_cycle(self) -> int:
+        """Cycles of one activation of a hammer segment (``per_address`` / activations)."""
+        return self.per_address // self.hammer.activations_per_row if self.hammer else 0
 
     @property
     def ops_per_visit(self) -> int:
@@ -129,6 +139,11 @@ def schedule(test, mem, runs: int | None = None) -> Schedule:
                 segs.append(Segment(run, ii, ei, item.order, t, c, tuple(oruns), total))
                 t += total
                 ops += k * mem.words
+            elif hasattr(item, "offsets"):        # a hammer item: activations, no element
+                rc = max(mem.read_cycles, mem.write_cycles)        # one row cycle
+                per = rc * item.activations_per_row
+                segs.append(Segment(run, ii, None, item.order, t, per, (), per * mem.rows, item))
+                t += per * mem.rows
             else:
                 d = seconds_to_cycles(item.seconds, mem.clock_hz)
                 segs.append(Segment(run, ii, None, None, t, 0, (), d))

@@ -95,7 +95,43 @@ class Delay:
         return Fraction(self.amount) * UNITS[self.unit]
 
 
-Item = Union[Element, Delay]
+MAX_HAMMER_ROWS = 16          # rows one hammer item cycles through
+MAX_ROW_OFFSET = 1 << 20
+
+
+@dataclass(frozen=True)
+class Hammer:
+    """A hammer item: ``⇑hammer(-1,+1)^N`` — for each physical row of the array (⇑ from row 0,
+    ⇓ from the last row), ``count`` rounds, each round activating, one after the other, the
+    rows at ``offsets`` from that row (the rows wrap around at the edges of the array).
+
+    An activation opens a row and closes it again (one row cycle), with no column access:
+    it reads and writes no cell, so it restores the row it opens (a DRAM refresh does the
+    same) and disturbs the rows next to it.  With an open page, an activation of the row that
+    is already open does nothing.  Refresh runs on during a hammer item (it is not a pause).
+    """
+
+    order: str
+    offsets: tuple[int, ...]
+    count: int = 1
+    pos: SourcePos | None = field(default=None, compare=False, repr=False)
+
+    def __post_init__(self):
+        if self.order not in ("up", "down"):
+            raise ValueError("a hammer item runs ⇑ or ⇓")
+        if not 1 <= len(self.offsets) <= MAX_HAMMER_ROWS:
+            raise ValueError(f"a hammer item cycles through 1 to {MAX_HAMMER_ROWS} rows")
+        if any(abs(k) > MAX_ROW_OFFSET for k in self.offsets):
+            raise ValueError(f"a row offset is at most {MAX_ROW_OFFSET:,} rows")
+        if not 1 <= self.count <= MAX_REPEAT:
+            raise ValueError(f"repeat count {self.count} outside 1..{MAX_REPEAT}")
+
+    @property
+    def activations_per_row(self) -> int:
+        return len(self.offsets) * self.count
+
+
+Item = Union[Element, Delay, Hammer]
 
 
 @dataclass(frozen=True)
@@ -120,8 +156,13 @@ class MarchTest:
         return tuple(i for i in self.items if isinstance(i, Delay))
 
     @property
+    def hammers(self) -> tuple[Hammer, ...]:
+        return tuple(i for i in self.items if isinstance(i, Hammer))
+
+    @property
     def ops_per_cell(self) -> int:
-        """Operations applied to each address: the k of the test's length k·n."""
+        """Operations applied to each address: the k of the test's length k·n (hammer
+        activations are not operations on the address; see :attr:`length_text`)."""
         return sum(e.ops_per_cell for e in self.elements)
 
     @property
@@ -133,7 +174,8 @@ class MarchTest:
         """The length as usually written, e.g. ``10n`` or ``12n + 2 Del``."""
         k = self.ops_per_cell
         d = len(self.delays)
-        return f"{k}n" + (f" + {d} Del" if d else "")
+        a = sum(h.activations_per_row for h in self.hammers)
+        return f"{k}n" + (f" + {a} act/row" if a else "") + (f" + {d} Del" if d else "")
 
     def flat_ops(self) -> Iterator[tuple[int, int, Op]]:
         """(element index among elements, op index with repeats expanded, op)."""

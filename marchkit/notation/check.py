@@ -5,7 +5,7 @@ from __future__ import annotations
 import re
 
 from ..errors import ConsistencyError, Diagnostic
-from .ast import Delay, Element, MarchTest
+from .ast import Delay, Element, Hammer, MarchTest
 from .printer import UNICODE_ORDER, format_item
 
 
@@ -30,6 +30,8 @@ def check_test(test: MarchTest) -> list[Diagnostic]:
     seen_write = False
     ei = -1
     for item in test.items:
+        if isinstance(item, Hammer):      # activations read and write no cell
+            continue
         if isinstance(item, Delay):
             if not seen_write:
                 diags.append(Diagnostic("warning", "a delay before the first write waits on unknown contents", item.pos))

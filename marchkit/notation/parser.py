@@ -8,7 +8,7 @@ from functools import lru_cache
 from pathlib import Path
 
 from ..errors import NotationError, NotationSyntaxError, SourcePos
-from .ast import MAX_REPEAT, Delay, Element, MarchTest, Op
+from .ast import MAX_HAMMER_ROWS, MAX_REPEAT, MAX_ROW_OFFSET, Delay, Element, Hammer, MarchTest, Op
 
 ORDER_WORDS = {
     "⇑": "up", "↑": "up", "up": "up",
@@ -29,6 +29,8 @@ FRIENDLY = {
     "NAME": "a fault class name",
     "LENGTH": "a length such as 10n",
     "REPEAT_MARK": "a repeat mark (* ^ ×)",
+    "HAMMER": "a hammer item (hammer)",
+    "ROWOFF": "a row offset such as -1 or +1",
 }
 
 
@@ -180,23 +182,44 @@ class _Builder:
     def err(self, message, where):
         return NotationError(message, _pos(where, self.filename), self.text)
 
+    def count(self, rep, what="repeats of one operation"):
+        count_tok = rep.children[1]
+        digits = str(count_tok).lstrip("0") or "0"
+        # int() refuses very long digit strings; such a count is out of range anyway
+        repeat = int(digits) if len(digits) <= len(str(MAX_REPEAT)) else MAX_REPEAT + 1
+        if not 1 <= repeat <= MAX_REPEAT:
+            shown = str(count_tok) if len(count_tok) <= 20 else f"{count_tok[:10]}... ({len(count_tok)} digits)"
+            raise self.err(f"repeat count {shown} is out of range: 1 to {MAX_REPEAT} {what}", count_tok)
+        return repeat
+
     def op(self, tree):
         tok = tree.children[0]
         kind, value = tok[0].lower(), int(tok[1])
-        repeat = 1
-        if len(tree.children) > 1:
-            rep = tree.children[1]
-            count_tok = rep.children[1]
-            digits = str(count_tok).lstrip("0") or "0"
-            # int() refuses very long digit strings; such a count is out of range anyway
-            repeat = int(digits) if len(digits) <= len(str(MAX_REPEAT)) else MAX_REPEAT + 1
-            if not 1 <= repeat <= MAX_REPEAT:
-                shown = str(count_tok) if len(count_tok) <= 20 else f"{count_tok[:10]}... ({len(count_tok)} digits)"
-                raise self.err(
-                    f"repeat count {shown} is out of range: 1 to {MAX_REPEAT} repeats of one operation",
-                    count_tok,
-                )
+        repeat = self.count(tree.children[1]) if len(tree.children) > 1 else 1
         return Op(kind, value, repeat, pos=_pos(tree.meta, self.filename))
+
+    def hammer(self, tree):
+        order_tok = tree.children[0]
+        order = ORDER_WORDS[str(order_tok).lower() if str(order_tok).isascii() else str(order_tok)]
+        if order == "any":
+            raise self.err("a hammer item runs ⇑ or ⇓ (up or down), not ⇕", order_tok)
+        offs = []
+        count = 1
+        for c in tree.children[2:]:
+            if getattr(c, "data", None) == "repeat":
+                count = self.count(c, "rounds of a hammer item")
+                continue
+            text = str(c)
+            digits = text.lstrip("+-").lstrip("0") or "0"
+            k = int(text[0] + digits if text[0] in "+-" else digits) if len(digits) <= 8 else MAX_ROW_OFFSET + 1
+            if abs(k) > MAX_ROW_OFFSET:
+                raise self.err(f"row offset {_short(text, 20)} is out of range: at most {MAX_ROW_OFFSET:,} rows "
+                               "either way", c)
+            offs.append(k)
+        if len(offs) > MAX_HAMMER_ROWS:
+            raise self.err(f"a hammer item cycles through at most {MAX_HAMMER_ROWS} rows (got {len(offs)})",
+                           tree.meta)
+        return Hammer(order, tuple(offs), count, pos=_pos(tree.meta, self.filename))
 
     def element(self, tree):
         order_tok = tree.children[0]
@@ -224,6 +247,8 @@ class _Builder:
                 items.append(self.element(c))
             elif c.data == "delay":
                 items.append(self.delay(c))
+            elif c.data == "hammer":
+                items.append(self.hammer(c))
         if not any(isinstance(i, Element) for i in items):
             raise self.err("a test needs at least one element, e.g. {⇕(w0)}", tree.meta)
         start = _pos(tree.meta, self.filename)

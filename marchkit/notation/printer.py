@@ -7,7 +7,7 @@ from __future__ import annotations
 
 from decimal import Decimal
 
-from .ast import Delay, Element, MarchTest, Op
+from .ast import Delay, Element, Hammer, MarchTest, Op
 
 UNICODE_ORDER = {"up": "⇑", "down": "⇓", "any": "⇕"}
 ASCII_ORDER = {"up": "up", "down": "down", "any": "any"}
@@ -31,6 +31,11 @@ def format_item(item, ascii: bool = False) -> str:
     if isinstance(item, Element):
         order = (ASCII_ORDER if ascii else UNICODE_ORDER)[item.order]
         return order + "(" + ",".join(format_op(o, ascii) for o in item.ops) + ")"
+    if isinstance(item, Hammer):
+        order = (ASCII_ORDER if ascii else UNICODE_ORDER)[item.order]
+        rows = ",".join(f"{k:+d}" if k else "0" for k in item.offsets)
+        rep = (("*" if ascii else "^") + str(item.count)) if item.count > 1 else ""
+        return f"{order}{' ' if ascii else ''}hammer({rows}){rep}"
     assert isinstance(item, Delay)
     return ("del" if ascii else "Del") + f"({format_amount(item.amount)}{item.unit})"
 

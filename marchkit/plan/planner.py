@@ -137,7 +137,7 @@ def active_spans(test, mem) -> tuple | None:
         return None
     spans: list = []
     for seg in schedule(test, mem).segments:
-        if seg.element is None or seg.cycles == 0:
+        if seg.is_delay or seg.cycles == 0:
             continue
         a, b = seg.start, seg.start + seg.cycles
         if spans and spans[-1][1] == a:

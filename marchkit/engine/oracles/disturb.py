@@ -1,7 +1,8 @@
 """Oracle of the disturb family (read disturb / row hammer; see :mod:`marchkit.faults.dram`).
 
-Every access activates its row (closed page) or only when another row, or none, is open
-(open page; refresh is hidden and leaves the open row open).  An activation of the victim's
+Every access, and every activation of a hammer item, activates its row (closed page) or only
+when another row, or none, is open (open page; refresh is hidden and leaves the open row
+open).  An activation of the victim's
 row or a refresh of it (slots at cycle s come before an operation at the same cycle) sets
 both neighbour counts to 0; an activation of row v − 1 or v + 1 adds one to that side's
 count; when a count reaches the threshold, a victim holding the vulnerable value flips.
@@ -29,11 +30,21 @@ class Fault(OracleFault):
         self.now = -1
 
     def access(self, run, w, kind, data, t):
+        self._touch(run, self.rows[w], t)
+        if kind == "w":
+            run.vals[w] = list(data)
+            return None
+        return list(run.vals[w])
+
+    def activate(self, run, row, t):
+        self._touch(run, row, t)
+
+    def _touch(self, run, r, t):
+        """An access to (or a hammer activation of) row ``r`` at cycle ``t``."""
         if t > self.now:
             if self.plan.slots(self.vrow, self.now + 1, t + 1):
                 self.cnt = [0, 0]
             self.now = t
-        r = self.rows[w]
         activates = self.closed or self.open_row != r
         self.open_row = r
         if activates:
@@ -44,7 +55,3 @@ class Fault(OracleFault):
                 self.cnt[side] += 1
                 if self.cnt[side] >= self.n and run.vals[self.cw][self.cb] == self.x:
                     run.vals[self.cw][self.cb] = 1 - self.x
-        if kind == "w":
-            run.vals[w] = list(data)
-            return None
-        return list(run.vals[w])

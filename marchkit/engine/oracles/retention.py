@@ -1,7 +1,7 @@
 """Oracle of the retention family (retention with refresh; see :mod:`marchkit.faults.dram`).
 
-The victim cell's restore events are the accesses of its row (of its own word on a memory
-without refresh) and the refreshes of its row (refresh slots at cycle s come before an
+The victim cell's restore events are the accesses of its row and the activations of its row
+by a hammer item (of its own word on a memory without refresh: activations restore nothing) and the refreshes of its row (refresh slots at cycle s come before an
 operation at the same cycle); when a stretch of ≥ τ between two consecutive restore events
 ends while the cell holds the value it loses, the cell flips (and the restore keeps the
 flipped value).  The start of the test counts as a restore.
@@ -32,11 +32,19 @@ class Fault(OracleFault):
             run.vals[self.cw][self.cb] = 1 - self.x
         self.last = t
 
-    def access(self, run, w, kind, data, t):
+    def _refreshes(self, run, t):
         if t > self.now:
             for s in self.plan.slots(self.vrow, self.now + 1, t + 1):
                 self._restore(run, s)
             self.now = t
+
+    def activate(self, run, row, t):
+        self._refreshes(run, t)
+        if self.row_mode and row == self.vrow:
+            self._restore(run, t)
+
+    def access(self, run, w, kind, data, t):
+        self._refreshes(run, t)
         touches = self.rows[w] == self.vrow if self.row_mode else w == self.cw
         if touches:
             self._restore(run, t)
