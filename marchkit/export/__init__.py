@@ -113,7 +113,7 @@ def export(test, mem, out: str, fmt: str | None = None, *, physical: bool = Fals
     generated testbench injects into its SRAM model by default.
 
     ``pins``: a :class:`~marchkit.export.pins.PinMap` (signal names, polarity, chip enable,
-    byte enables, compare strobe) for the STIL writer; the default names otherwise.
+    byte enables, compare strobe) for the STIL and VCD writers; the default names otherwise.
 
     ``max_bytes``: refuse, before writing, an export estimated larger than this (default
     :data:`.budget.DEFAULT_LIMIT`, 100 MB; ``0`` for no limit).  The estimate is in
@@ -129,6 +129,11 @@ def export(test, mem, out: str, fmt: str | None = None, *, physical: bool = Fals
         raise OutputError("a stuck-at cell can only be injected with --format hex (into its SRAM model)")
     check_stuck(mem, stuck)
     plan = Plan(test, mem, physical=physical)
+    if plan.looped and plan.latency:
+        raise OutputError(
+            f"pipelined reads (read latency {plan.latency}) with an operation repeated more than "
+            f"{EXPAND_LIMIT:,} times in a row cannot be exported yet (the compares would cross the loops); "
+            "export with --read-latency 0 or shorten the repeat")
     if plan.looped and fmt != "stil":
         longest = max(op.repeat for e in test.elements for op in e.ops)
         raise OutputError(
@@ -136,8 +141,8 @@ def export(test, mem, out: str, fmt: str | None = None, *, physical: bool = Fals
             f"{fmt} writes every clock cycle, so it takes at most {EXPAND_LIMIT:,} operations per address "
             "visit — export it as stil (repeats become loops) or shorten the repeat")
     if pins is not None:
-        if fmt != "stil" and not pins.is_default:
-            raise OutputError("a pin map (signal names, polarity, enables, strobe) applies to --format stil")
+        if fmt not in ("stil", "vcd") and not pins.is_default:
+            raise OutputError("a pin map (signal names, polarity, enables, strobe) applies to --format stil and vcd")
         plan.pins = pins
     from .budget import DEFAULT_LIMIT, check_budget
 

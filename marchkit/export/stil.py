@@ -23,6 +23,11 @@ low/high, ``CLK`` is ``P``: one pulse); a read is compared (``H``/``L``) in its 
 only, other cycles have ``X`` on ``DOUT``.  An idle run of two cycles or more (a delay) is
 ``Loop N { V { … } }``.  ``Ann`` annotations mark each background run, element and delay.
 The number of cycles (a ``Loop`` counting ``N``) equals ``Schedule.cycles``.
+
+With pipelined reads (``read_latency`` L > 0) ``DOUT`` carries ``H``/``L`` on the compare cycle,
+L cycles after the read's last cycle, in the ``V`` of whatever is issued then (``X`` on the
+read's own cycles); the first L cycles of an idle run after reads are written as single
+``V`` statements, and the pattern may end with idle drain cycles (annotated) that only compare.
 """
 
 from __future__ import annotations
@@ -33,7 +38,7 @@ from fractions import Fraction
 import numpy as np
 
 from .. import __version__
-from .text import Row, bin_text, put_address, put_data, table
+from .text import Row, bin_text, put_address, put_data, put_rows, table
 
 WFT = "cycle"
 PATTERN = "march"
@@ -122,6 +127,8 @@ def header(plan) -> str:
     wave_text = "\n".join(waves)
     exact = (Fraction(period) * 10**18).denominator == 1          # at most 9 decimals of ns
     period_note = "" if exact else f"; the clock period is {time_text(period)[1:-1]} rounded"
+    lat_note = (f"; pipelined reads: DOUT is compared {plan.latency} cycle(s) after the read's last cycle"
+                if plan.latency else "")
     pin_note = "" if pm.is_default else f"\n    Ann {{* pins: {ann_text(_pin_text(pm))} *}}"
     return f"""STIL 1.0;
 
@@ -129,7 +136,7 @@ Header {{
     Title {quoted(f"marchkit: {plan.test.display_name} on {mem.name or 'memory'}")};
     Source {quoted(f"marchkit {__version__}")};
     Ann {{* {ann_text(plan.describe())} *}}
-    Ann {{* {plan.cycles} cycles in {plan.runs} background run(s){period_note} *}}{pin_note}
+    Ann {{* {plan.cycles} cycles in {plan.runs} background run(s){period_note}{lat_note} *}}{pin_note}
 }}
 
 Signals {{
@@ -185,6 +192,14 @@ def write_stil(plan, f, **_) -> dict:
     data_tabs: dict[int, np.ndarray] = {}
     vectors = loops = 0
     last_run = None
+    pipe = None
+    if plan.latency:            # pipelined reads: DOUT comes from the Pipeline
+        from .stream import Pipeline
+
+        pipe = Pipeline(plan)
+        ctexts = [x_d] + [t.decode() for t in bin_text(plan.cmp_words, B, b"LH")]
+        ctab = table(ctexts)
+        doff = row.off["data"] + len(probe) - B - 1          # DOUT's value in the data field
     for b in plan.blocks():
         seg = b.seg
         if seg.run != last_run:
@@ -196,14 +211,24 @@ def write_stil(plan, f, **_) -> dict:
             loops += lo
             continue
         if b.is_idle:
-            item = plan.test.items[seg.item]
-            f.write(f"    Ann {{* {ann_text(format_item(item, ascii=True))}: {b.count} idle cycles *}}\n".encode())
-            if b.count == 1:
-                f.write(f"    {idle_v}\n".encode())
+            if getattr(seg, "drain", False):
+                what = f"read latency {plan.latency}: waiting for the last read's data"
             else:
-                f.write(f"    Loop {b.count} {{ {idle_v} }}\n".encode())
+                what = ann_text(format_item(plan.test.items[seg.item], ascii=True))
+            f.write(f"    Ann {{* {what}: {b.count} idle cycles *}}\n".encode())
+            count = b.count
+            if pipe is not None:
+                head = pipe.idle(count)
+                if head.any():
+                    f.write("".join(f"    {idle_v[:-len(x_d) - 3]}{ctexts[int(c)]}; }}\n" for c in head).encode())
+                    vectors += len(head)
+                    count -= len(head)
+            if count == 1:
+                f.write(f"    {idle_v}\n".encode())
+            elif count:
+                f.write(f"    Loop {count} {{ {idle_v} }}\n".encode())
                 loops += 1
-            vectors += 1
+            vectors += 1 if count else 0
             continue
         if b.start == seg.start:
             el = plan.test.elements[seg.element]
@@ -216,6 +241,8 @@ def write_stil(plan, f, **_) -> dict:
             texts = []
             for d, hl in zip(d01, dhl):
                 d, hl = d.decode(), hl.decode()
+                if pipe is not None:
+                    hl = x_d            # the compare comes L cycles later (overwritten below)
                 texts += [f"{d}; {we}=1; {re_}=0;{extra(1, 1)} DOUT={x_d};",
                           f"{zero_d}; {we}=0; {re_}=1;{extra(1, 0)} DOUT={x_d};",
                           f"{zero_d}; {we}=0; {re_}=1;{extra(1, 0)} DOUT={hl};"]
@@ -223,6 +250,8 @@ def write_stil(plan, f, **_) -> dict:
         buf = row.buffer(b.count)
         put_address(row, buf, "address", b, "bin")
         put_data(row, buf, "data", b, data_tabs[seg.run])
+        if pipe is not None:
+            put_rows(buf, doff, ctab, pipe.op(b))
         f.write(buf)
         vectors += b.count
     f.write(b"}\n")
