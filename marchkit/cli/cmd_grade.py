@@ -52,7 +52,22 @@ def memory_line(mem) -> str:
     return (f"{name}{mem.words} × {mem.bits} bit{'s' if mem.bits > 1 else ''}, mux {mem.mux} "
             f"({mem.rows} rows × {mem.columns} columns{scr}), order {mem.order}, "
             f"background{'s' if len(bgs) > 1 else ''} {', '.join(bgs)}, {fmt_clock(mem.clock_hz)}"
-            + dram_text(mem))
+            + latency_text(mem) + dram_text(mem))
+
+
+def latency_text(mem) -> str:
+    lat = getattr(mem, "read_latency", 0)
+    return f", reads pipelined, data {lat} cycle{'s' if lat > 1 else ''} later" if lat else ""
+
+
+def drain_text(test, mem) -> str:
+    """' (N waiting for the last read's data)' when a pipelined memory makes the test wait."""
+    if not getattr(mem, "read_latency", 0):
+        return ""
+    from ..model import schedule
+
+    d = schedule(test, mem).drain
+    return f" ({d} waiting for the last read's data)" if d else ""
 
 
 def dram_text(mem) -> str:
@@ -279,7 +294,7 @@ def show_result(res, con, primitives=False, weights=None, score=None) -> None:
     delays = len(t.delays)
     con.print(
         f"cost    {t.ops_per_cell} ops per address per run · {res.ops:,} operations · {res.cycles:,} cycles"
-        f" · {fmt_time(res.seconds)} at {fmt_clock(res.memory.clock_hz)}"
+        f"{drain_text(t, res.memory)} · {fmt_time(res.seconds)} at {fmt_clock(res.memory.clock_hz)}"
         + (f" (delays included: {delays} per run)" if delays else "")
     )
     con.print(f"[dim]graded {res.total.instances:,} fault instances in {res.elapsed:.3g} s[/dim]")
