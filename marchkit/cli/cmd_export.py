@@ -41,11 +41,11 @@ def register(sub):
     g.add_argument("--stuck-at", metavar="WORD:BIT:VALUE",
                    help="hex: the testbench makes this cell (logical word, bit) of its SRAM model stuck at VALUE")
     g.add_argument("--pins", metavar="KEY=VALUE,...",
-                   help="stil: pin map over the memory file's [pins]: clock, address, data_in, data_out, "
+                   help="stil, vcd: pin map over the memory file's [pins]: clock, address, data_in, data_out, "
                    "write_enable, read_enable (names), write_enable_active, read_enable_active (high/low), "
                    "chip_enable (a name; active on operation cycles, inactive on idle ones), chip_enable_active, "
                    "byte_enables (a bus name), byte_enables_active, byte_bits (default 8), strobe (compare "
-                   "point as a fraction of the period, default 0.75)")
+                   "point as a fraction of the period, default 0.75; stil only)")
     g.add_argument("--quiet", "-q", action="store_true", help="print nothing on success")
     p.set_defaults(func=run)
 
