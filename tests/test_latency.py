@@ -363,3 +363,9 @@ def test_bist_on_a_pipelined_memory_passes_and_finds_a_stuck_cell_in_icarus(cli,
     (det, where), = reference_verdicts(resolve_test("March C-"), m, [Instance(SAF[1], (5 * 4 + 2,))])
     code, out = run_vvp(d / "s.vvp", d, "+stuck_word=5", "+stuck_bit=2", "+stuck_value=1")
     assert det and f"stuck-at-1 cell: address 5 bit 2: detected, first at cycle {where.cycle} (address 5, bits 4)" in out
+
+
+def test_a_pin_name_taken_by_a_vcd_variable_is_refused_before_writing(cli, tmp_path):
+    out = tmp_path / "p.vcd"
+    code, text, err = cli("export", MATS_PLUS, "--words", "4", "-o", str(out), "--pins", "data_out=QB,write_enable=QB_mask")
+    assert code == 2 and "pins: the name 'QB_mask' is taken in VCD" in err and not out.exists()

@@ -102,9 +102,15 @@ class _Signals:
         pm = self.pins
         if pm is None:
             return {n: n for n in ("clk",) + self.names}
-        return {"clk": pm.clock, "address": pm.address, "we": pm.write_enable, "re": pm.read_enable,
-                "wdata": pm.data_in, "expect": pm.data_out, "mask": pm.data_out + "_mask", "run": "run",
-                "element": "element", "op": "op", "ce": pm.chip_enable, "ben": pm.byte_enables}
+        names = {"clk": pm.clock, "address": pm.address, "we": pm.write_enable, "re": pm.read_enable,
+                 "wdata": pm.data_in, "expect": pm.data_out, "mask": pm.data_out + "_mask", "run": "run",
+                 "element": "element", "op": "op", "ce": pm.chip_enable, "ben": pm.byte_enables}
+        shown = [names[n] for n in ("clk",) + self.names]
+        dup = sorted({n for n in shown if shown.count(n) > 1})
+        if dup:
+            raise OutputError(f"pins: the name {dup[0]!r} is taken in VCD (the variables run, element, op and "
+                              f"{pm.data_out}_mask, the compare mask, are added); choose another")
+        return names
 
     def low(self, name) -> bool:
         """True for an enable whose pin is active low (written inverted)."""
