@@ -161,3 +161,12 @@ def test_bist_testbench_log_uses_hex_for_addresses_and_data(cli, tmp_path):
                   log)
     assert m, log
     assert m.group(1) == "13" and m.group(4) == "13" and m.group(2) == "2" and m.group(5) == "04"
+
+
+def test_fail_log_messages_number_elements_like_grade(cli, tmp_path):
+    """A log line on a write names the operation as check and grade do: M1 op 1 (from 0)."""
+    p = tmp_path / "fails.csv"
+    # March C- on 16 one-bit words: M1 ⇑(r0,w1) writes address 0 in cycle 17 (16 + 1, by hand)
+    p.write_text("cycle,address,expected,observed\n17,0,0,1\n")
+    code, out, err = cli("diagnose", "March C-", "--words", "16", "--fails", str(p))
+    assert code == 2 and "cycle 17 is a write, w1 (M1 op 1), not a compare" in err, err

@@ -331,8 +331,9 @@ class CompareTable:
                         f"{cycle - lat} is an idle cycle (a delay)")
             return f"cycle {cycle} is an idle cycle (a delay), not a compare"
         k = self._op_at(seg, slot)
-        what = f"{seg.op_kinds[k]}{seg.op_values[k]} (operation {k + 1} of element {seg.element + 1}"
-        what += f", background run {seg.run + 1})" if self.sched.runs > 1 else ")"
+        # one numbering everywhere: M0, op 0, run 0 (as check, grade and the export's columns)
+        what = f"{seg.op_kinds[k]}{seg.op_values[k]} (M{seg.element} op {k}"
+        what += f", background run {seg.run})" if self.sched.runs > 1 else ")"
         at = f"cycle {cycle} is not a compare: {lat} cycles earlier (read latency), cycle {cycle - lat}" if lat \
             else f"cycle {cycle}"
         if seg.op_kinds[k] == "w":
