@@ -336,8 +336,11 @@ def test_hammer_repeats_with_latency_are_refused_clearly(cli, tmp_path):
 
 def test_bist_takes_the_memory_latency_as_its_default(cli, tmp_path):
     code, out, err = cli("bist", "MATS+", "--words", "16", "--bits", "4", "--read-latency", "2",
-                         "-o", str(tmp_path / "mb"), "--quiet")
+                         "-o", str(tmp_path / "mb"))
     assert code == 0, err
+    # MATS+ on 16 words: 80 cycles; the last read is followed by one write, so 81 (by hand)
+    assert "read latency 2: LAT 3; done rises 3 cycles after the last operation; grade and export count 81 " \
+        "cycles" in " ".join(out.split())
     assert re.search(r"#\(parameter AW = 4, DW = 4, LAT = 3\)", (tmp_path / "mb" / "mbist.v").read_text())
 
 

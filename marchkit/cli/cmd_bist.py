@@ -72,6 +72,12 @@ def run(args) -> int:
     out.write(f"test: {ir.cycles:,} cycles, {ir.ops:,} operations, {format_time(ir.seconds)} at {mhz:g} MHz"
               + (" (transparent: signature prediction, then the test)\n" if ir.transparent else
                  f" ({ir.runs} background run{'s' if ir.runs != 1 else ''})\n"))
+    if mem.read_latency:
+        from ..model import schedule
+
+        out.write(f"read latency {mem.read_latency}: LAT {args.latency}; done rises {args.latency} cycles after the "
+                  f"last operation; grade and export count {schedule(test, mem).cycles:,} cycles (the test ends "
+                  "when the last read's data is back)\n")
     if res.area is not None:
         a = res.area
         if "skipped" in a:
