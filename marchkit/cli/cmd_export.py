@@ -79,7 +79,7 @@ def _stop_on_term():
 
 def run(args) -> int:
     from ..export import export
-    from ..faults import format_seconds
+    from ..units import format_time
     from .common import load_test, memory_from_args
 
     mem = memory_from_args(args)
@@ -98,8 +98,8 @@ def run(args) -> int:
         out = sys.stderr if args.output == "-" else sys.stdout
         where = "standard output" if args.output == "-" else ", ".join(res.files)
         mhz = float(mem.clock_hz) / 1e6
-        out.write(f"wrote {where} ({res.format}): {res.cycles} cycles, {format_seconds(res.seconds)} "
-                  f"at {mhz:g} MHz, {res.bytes} bytes\n")
+        out.write(f"wrote {where} ({res.format}): {res.cycles:,} cycles, {format_time(res.seconds)} "
+                  f"at {mhz:g} MHz, {res.bytes:,} bytes\n")    # times and counts as grade writes them
         if res.format == "hex" and len(res.files) == 3:
             tb = res.files[1]
             out.write(f"simulate: iverilog -o sim.vvp {tb} {res.files[2]} && vvp -n sim.vvp"
