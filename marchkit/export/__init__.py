@@ -129,11 +129,6 @@ def export(test, mem, out: str, fmt: str | None = None, *, physical: bool = Fals
         raise OutputError("a stuck-at cell can only be injected with --format hex (into its SRAM model)")
     check_stuck(mem, stuck)
     plan = Plan(test, mem, physical=physical)
-    if plan.looped and plan.latency:
-        raise OutputError(
-            f"pipelined reads (read latency {plan.latency}) with an operation repeated more than "
-            f"{EXPAND_LIMIT:,} times in a row cannot be exported yet (the compares would cross the loops); "
-            "export with --read-latency 0 or shorten the repeat")
     if plan.looped and fmt != "stil":
         longest = max(op.repeat for e in test.elements for op in e.ops)
         raise OutputError(

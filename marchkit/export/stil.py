@@ -206,7 +206,7 @@ def write_stil(plan, f, **_) -> dict:
             f.write(f"    Ann {{* run {seg.run}: background {ann_text(plan.run_names[seg.run])} *}}\n".encode())
             last_run = seg.run
         if getattr(b, "looped", False):
-            v, lo = _write_looped(plan, seg, f, x_d, zero_d)
+            v, lo = _write_looped(plan, seg, f, x_d, zero_d, extra, pipe)
             vectors += v
             loops += lo
             continue
@@ -258,13 +258,19 @@ def write_stil(plan, f, **_) -> dict:
     return {"vectors": vectors, "loops": loops}
 
 
-def _write_looped(plan, seg, f, x_d, zero_d):
+def _write_looped(plan, seg, f, x_d, zero_d, extra, pipe=None):
     """An element with hammer-length repeats, visit by visit, each run of copies of an
     operation as ``Loop N { ... }`` around the vectors of one copy (so the file grows with
-    the number of addresses, not with the repeat count)."""
+    the number of addresses, not with the repeat count).
+
+    With pipelined reads (``pipe``) a copy's compare lands L cycles later: the first
+    ``ceil(L / cycles of a copy)`` copies of a run are written out (they carry the compares of
+    what came before), then the rest is one loop whose body is the same for every copy (it
+    compares the copy issued L cycles earlier, the same operation on the same word)."""
     from ..notation.printer import format_item
 
     mem = plan.mem
+    pm = _pins(plan)
     A, B = plan.address_bits, plan.bits
     el = plan.test.elements[seg.element]
     note = " run as up" if seg.order == "any" else ""
@@ -272,7 +278,14 @@ def _write_looped(plan, seg, f, x_d, zero_d):
     n = mem.words
     words = plan.words[seg.run]
     cls_up = plan.cls_up[seg.run]
+    base = plan.cmp_base[seg.run]
+    lat = plan.latency
     vectors = loops = 0
+    cw, clk, we, re_ = plan.cmp_words, pm.clock, pm.write_enable, pm.read_enable
+
+    def dout(code: int) -> str:
+        return format(cw[code - 1], f"0{B}b").replace("0", "L").replace("1", "H") if code else x_d
+
     for p in range(n):
         i = n - 1 - p if seg.down else p
         addr = format(int(plan.addr_up[i]), f"0{A}b")
@@ -282,15 +295,31 @@ def _write_looped(plan, seg, f, x_d, zero_d):
             word = words[2 * cls + r.value]
             d = format(word, f"0{B}b")
             if r.kind == "w":
-                one = [f"V {{ CLK=P; ADDR={addr}; DIN={d}; WE=1; RE=0; DOUT={x_d}; }}"] * r.each
+                heads = [f"{clk}=P; ADDR={addr}; DIN={d}; {we}=1; {re_}=0;{extra(1, 1)}"] * r.each
             else:
-                hl = d.replace("0", "L").replace("1", "H") if compared else x_d
-                one = ([f"V {{ CLK=P; ADDR={addr}; DIN={zero_d}; WE=0; RE=1; DOUT={x_d}; }}"] * (r.each - 1)
-                       + [f"V {{ CLK=P; ADDR={addr}; DIN={zero_d}; WE=0; RE=1; DOUT={hl}; }}"])
-            if r.repeat == 1:
+                heads = [f"{clk}=P; ADDR={addr}; DIN={zero_d}; {we}=0; {re_}=1;{extra(1, 0)}"] * r.each
+            issued = np.zeros(r.each, np.int64)
+            if r.kind == "r" and compared:
+                issued[-1] = 1 + base + 2 * cls + r.value
+            if pipe is None:
+                one = [f"V {{ {h} DOUT={dout(int(c))}; }}" for h, c in zip(heads, issued)]
+                explicit, looped = 0, r.repeat
+            else:
+                explicit = min(r.repeat, -(-lat // r.each))
+                for _ in range(explicit):
+                    got = pipe.feed(issued)
+                    parts += [f"    V {{ {h} DOUT={dout(int(c))}; }}\n" for h, c in zip(heads, got)]
+                    vectors += r.each
+                looped = r.repeat - explicit
+                if looped:
+                    got = pipe.feed(issued)      # the same in every later copy: the carry is periodic
+                    one = [f"V {{ {h} DOUT={dout(int(c))}; }}" for h, c in zip(heads, got)]
+            if not looped:
+                continue
+            if looped == 1:
                 parts += [f"    {v}\n" for v in one]
             else:
-                parts.append(f"    Loop {r.repeat} {{ " + " ".join(one) + " }\n")
+                parts.append(f"    Loop {looped} {{ " + " ".join(one) + " }\n")
                 loops += 1
             vectors += len(one)
         f.write("".join(parts).encode())

@@ -519,9 +519,14 @@ class Pipeline:
         return np.broadcast_to(codes, (b.count,)) if np.ndim(codes) == 0 else codes
 
     def op(self, b) -> np.ndarray:
-        full = np.concatenate([self.carry, self.issued(b)])
-        self.carry = full[b.count:].copy()
-        return full[:b.count]
+        return self.feed(self.issued(b))
+
+    def feed(self, issued: np.ndarray) -> np.ndarray:
+        """The compares on the cycles that issue ``issued`` (codes per cycle, in order)."""
+        n = issued.shape[0]
+        full = np.concatenate([self.carry, issued])
+        self.carry = full[n:].copy()
+        return full[:n]
 
     def idle(self, count: int) -> np.ndarray:
         head = self.carry[:count].copy()
