@@ -2,6 +2,7 @@
 
     python benchmarks/bench_export.py [--words 1048576] [--bits 8] [--test "March C-"]
                                       [--formats csv,jsonl,stil,vcd,hex] [--repeat 3] [--dir DIR]
+                                      [--read-latency N]   (pipelined reads: compares N cycles later)
 
 For each format it exports the test (default: March C-, 10n, on 2^20 words: 10,485,760
 cycles) in a fresh process and measures
@@ -41,7 +42,7 @@ def child_export(args) -> None:
     from marchkit.notation import resolve_test
 
     test = resolve_test(args.test)
-    mem = make_memory(args.words, args.bits)
+    mem = make_memory(args.words, args.bits, read_latency=args.read_latency)
     base = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
     t0 = time.perf_counter()
     res = export(test, mem, args.out, args.child, force=True, max_bytes=0)   # the benchmark writes gigabytes on purpose
@@ -101,6 +102,7 @@ def main() -> None:
     ap.add_argument("--test", default="March C-")
     ap.add_argument("--formats", default="csv,jsonl,stil,vcd,hex")
     ap.add_argument("--repeat", type=int, default=3)
+    ap.add_argument("--read-latency", type=int, default=0)
     ap.add_argument("--dir", default=None, help="where the files are written (default: a temporary directory here)")
     ap.add_argument("--child", help=argparse.SUPPRESS)
     ap.add_argument("--raw", action="store_true", help=argparse.SUPPRESS)
@@ -113,8 +115,9 @@ def main() -> None:
         return child_export(args)
 
     d = args.dir or tempfile.mkdtemp(prefix="bench_export.", dir=".")
-    common = ["--words", str(args.words), "--bits", str(args.bits), "--test", args.test]
-    print(f"{args.test} on {args.words} words x {args.bits} bits; median of {args.repeat} runs; files in {d}")
+    common = ["--words", str(args.words), "--bits", str(args.bits), "--test", args.test,
+              "--read-latency", str(args.read_latency)]
+    print(f"{args.test} on {args.words} words x {args.bits} bits, read latency {args.read_latency}; median of {args.repeat} runs; files in {d}")
     print("export s / raw s: writing into the page cache; +sync: including the flush to disk (fsync)")
     print(f"{'format':7} {'cycles':>10} {'MB':>7} {'export s':>9} {'MB/s':>6} {'raw s':>7} {'ratio':>6} "
           f"{'ratio+sync':>10} {'no-disk s':>9} {'peak RSS MB':>11}")

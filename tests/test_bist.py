@@ -217,7 +217,7 @@ def variants(test):
     return out
 
 
-LINE = re.compile(r"scenario (\d+) fail (\d) cycle (\d+) addr (\d+) bits (\S+)")
+LINE = re.compile(r"scenario (\d+) fail (\d) cycle (\d+) addr ([0-9a-fx]+) bits (\S+)")
 
 
 def run_scenarios(d: Path, lines, program=None, name="f"):
@@ -361,7 +361,7 @@ def test_stuck_at_plusargs(tmp_path):
         kind = SAF[0] if value == 0 else SAF[1]
         (det, where), = reference_verdicts(test, mem, [Instance(kind, (word * 4 + bit,))])
         out = run(["vvp", "-n", "sim.vvp", f"+stuck_word={word}", f"+stuck_bit={bit}", f"+stuck_value={value}"], tmp_path)
-        assert f"detected, first at cycle {where.cycle} (address {where.address}," in out, out
+        assert f"detected, first at cycle {where.cycle} (address {where.address:x}," in out, out   # hex, 4 address bits
 
 
 def test_injected_instance_count():

@@ -269,10 +269,10 @@ def test_the_trace_agrees_with_the_generator_cycle_by_cycle():
 
 def _icarus_log(out, bits):
     lines = []
-    for m in re.finditer(r"FAIL at cycle \d+: address ([0-9a-fA-F]+) expected ([01]+) read ([01xz]+) mask ([01]+) "
-                         r"\(compared in cycle (\d+)\)", out):
+    for m in re.finditer(r"FAIL at cycle \d+: address ([0-9a-f]+) expected ([0-9a-f]+) read ([0-9a-fxz]+) "
+                         r"mask ([0-9a-f]+) \(compared in cycle (\d+)\)", out):     # addresses and data in hex
         addr, exp, obs, _mask, cyc = m.groups()
-        lines.append(LogLine(int(cyc), int(addr, 16), int(exp, 2), int(obs.replace("x", "0").replace("z", "0"), 2)))
+        lines.append(LogLine(int(cyc), int(addr, 16), int(exp, 16), int(obs.replace("x", "0").replace("z", "0"), 16)))
     return lines
 
 
@@ -636,7 +636,7 @@ def test_icarus_log_from_the_exported_stuck_at_testbench(tmp_path, cli, monkeypa
     assert code == 0, err
     vvp = compile_tb(tmp_path)
     code, out = run_vvp(vvp, tmp_path, "+all_failures")
-    assert code != 0 and "stuck-at-1 cell: address 19 bit 2" in out, out
+    assert code != 0 and "stuck-at-1 cell: address 13 bit 2" in out, out       # word 19 in hex
     m = make_memory(words=32, bits=4, mux=2)
     lines = _icarus_log(out, m.bits)
     (tmp_path / "fails.csv").write_text(fail_log_csv(lines, m))

@@ -550,3 +550,24 @@ def test_the_shipped_dram_example_and_demo(cli):
     assert "66.67%" in out
     code, out, err = cli("demo")
     assert code == 0 and "corvid_edram" in out and "disturb" in out, err
+
+
+@pytest.mark.parametrize("latency", [1, 3])
+def test_stil_hammer_item_with_pipelined_reads_shifts_every_strobe(tmp_path, latency):
+    # read back by semi-ate-stil: with a read latency of L cycles every compare (DOUT not X)
+    # lands exactly L cycles after its place with latency 0, across the hammer item's loops
+    from marchkit.export import export
+
+    t = parse_notation("{⇑(w0); ⇑(r0); ⇑hammer(-1,+1)^40; ⇓(r0)}")
+    flat = {}
+    for lat in (0, latency):
+        mem = make_memory(16, 2, mux=4, read_latency=lat, refresh="1ms", clock="100MHz")
+        out = tmp_path / f"l{lat}.stil"
+        export(t, mem, str(out))
+        cyc = [dict(v) for n, v in _stil_loops(out) for _ in range(n)]
+        assert len(cyc) == schedule(t, mem).cycles
+        flat[lat] = cyc
+    strobes0 = [(i, c["DOUT"]) for i, c in enumerate(flat[0]) if set(c["DOUT"]) != {"X"}]
+    strobesL = [(i, c["DOUT"]) for i, c in enumerate(flat[latency]) if set(c["DOUT"]) != {"X"}]
+    assert [(i + latency, d) for i, d in strobes0] == strobesL
+    assert len(strobes0) == 32

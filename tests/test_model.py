@@ -623,7 +623,7 @@ def test_unknown_key_has_line_column_and_caret(tmp_path):
     text = e.render()
     lines = text.split("\n")
     assert lines[0] == f"{p}:3:3: error: unknown key 'wrods' (did you mean 'words'?); a memory file knows: " + \
-        "backgrounds, bits, clock, mux, name, neighbours, order, page, read_cycles, refresh, " \
+        "backgrounds, bits, clock, mux, name, neighbours, order, page, read_cycles, read_latency, refresh, " \
         "refresh_during_delays, refresh_scheme, retention, scramble_bits, scramble_xor, words, write_cycles"
     assert lines[1] == "      wrods = 16"
     assert lines[2] == "      ^^^^^"

@@ -456,7 +456,7 @@ def test_cli_table(capsys):
     rc = main(["compare", "MATS+", "March C-", "March SS", "--words", "8", "--sort", "coverage"])
     out = capsys.readouterr().out
     assert rc == 0
-    assert "cost and coverage" in out and "coverage per class" in out
+    assert "cost, score and coverage" in out and "coverage per class" in out
     assert "what each step along the front buys" in out
     lines = [ln for ln in out.splitlines() if ln.startswith(("MATS+", "March C-", "March SS"))]
     assert [ln.split("│")[0].strip() for ln in lines[:3]] == ["March SS", "March C-", "MATS+"]

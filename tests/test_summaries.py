@@ -129,7 +129,7 @@ def test_compare_html_report(cli, tmp_path):
     img = next(a for t, a in p.tags if t == "img")
     assert img["src"].startswith("data:image/png;base64,")
     text = " ".join(p.text)
-    assert "Cost, score and coverage" in text and "Per class" in text and "March C-" in text
+    assert "cost, score and coverage" in text and "coverage per class (%)" in text and "March C-" in text
 
 
 def test_json_provenance(cli):

@@ -327,7 +327,7 @@ def lower(test, mem, transparent: bool = False) -> BistIR:
         order=order, words=mem.words, aw=mem.address_bits, dw=mem.bits,
         read_cycles=mem.read_cycles, write_cycles=mem.write_cycles, clock_hz=mem.clock_hz,
         mux_log2=mux_log2, scramble_bits=mem.scramble_bits, scramble_xor=mem.scramble_xor,
-        cycles=sched.cycles,
+        cycles=sched.cycles - sched.drain,     # the controller adds its own LAT at the end
         ops=sched.ops - (sum(s.repeat for s in steps if not s.is_delay and s.write) * mem.words if transparent else 0),
         transparent=transparent,
     )

@@ -27,6 +27,10 @@ mismatches (the comparator's ``if`` treats ``x`` as false), as in the fault simu
 ``+stuck_word=W +stuck_bit=B +stuck_value=V`` runs the test once with that cell stuck at V and
 prints ``... detected, first at cycle C (address A, bits B)`` or ``... not detected``.
 
+One number base per quantity, in every line the testbench prints: cycles, bit numbers, counts
+and scenario numbers in decimal; addresses and data (``fail_bits``) in hexadecimal, zero-padded
+to the bus width — as the csv export and fail logs write them.  (Plusargs are read in decimal.)
+
 ``+program=FILE`` (``program`` style) loads another program into the instruction memory first;
 ``+cycles=N +ops=N`` give its figures for the fault-free check.
 """
@@ -135,6 +139,7 @@ module {top}_tb;
     reg clk, rst_n, start;
     wire busy, done, fail, mem_ce, mem_we;
     wire [AW-1:0] fail_addr, mem_addr;
+    reg [AW-1:0] stuck_a;                 // the stuck cell's address, printed in hex like fail_addr
     wire [DW-1:0] fail_bits, mem_wdata, mem_rdata;
     wire [31:0] fail_cycle;
 
@@ -225,11 +230,12 @@ module {top}_tb;
             run_test;
             if (!done)
                 $fatal(1, "FAILED: not done after %0d cycles", waited);
+            stuck_a = sw;
             if (fail)
-                $display("stuck-at-%0d cell: address %0d bit %0d: detected, first at cycle %0d (address %0d, bits %h)",
-                         sv, sw, sb, fail_cycle, fail_addr, fail_bits);
+                $display("stuck-at-%0d cell: address %h bit %0d: detected, first at cycle %0d (address %h, bits %h)",
+                         sv, stuck_a, sb, fail_cycle, fail_addr, fail_bits);
             else
-                $display("stuck-at-%0d cell: address %0d bit %0d: not detected", sv, sw, sb);
+                $display("stuck-at-%0d cell: address %h bit %0d: not detected", sv, stuck_a, sb);
         end else if ($value$plusargs("faults=%s", file)) begin
             fd = $fopen(file, "r");
             if (fd == 0)
@@ -244,7 +250,7 @@ module {top}_tb;
                         $display("scenario %0d timeout", n);
                         bad = bad + 1;
                     end else
-                        $display("scenario %0d fail %0d cycle %0d addr %0d bits %h{restored_fmt}", n, fail, fail_cycle, fail_addr, fail_bits{restored_arg});
+                        $display("scenario %0d fail %0d cycle %0d addr %h bits %h{restored_fmt}", n, fail, fail_cycle, fail_addr, fail_bits{restored_arg});
                     n = n + 1;
                 end else begin
                     got = $fgetc(fd);          // skip a comment or blank line
@@ -263,7 +269,7 @@ module {top}_tb;
             if (!done)
                 $fatal(1, "FAILED: not done after %0d cycles", waited);
             if (fail)
-                $fatal(1, "FAILED: a fault-free memory failed at cycle %0d, address %0d, bits %h", fail_cycle, fail_addr, fail_bits);
+                $fatal(1, "FAILED: a fault-free memory failed at cycle %0d, address %h, bits %h", fail_cycle, fail_addr, fail_bits);
             if (!busy_at_0 || first_ce != FIRST)
                 $fatal(1, "FAILED: the first operation came in cycle %0d after start, not %0d", first_ce, FIRST);
             if (busy_cycles != CYCLES + LAT)

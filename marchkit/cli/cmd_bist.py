@@ -28,8 +28,9 @@ def register(sub):
                    help="synthesize with yosys (generic cells) and print cells and flip-flops")
     g.add_argument("--program-only", action="store_true",
                    help="only assemble TEST into a $readmemh program for the programmable controller")
-    g.add_argument("--latency", type=int, default=1, metavar="N",
-                   help="memory read latency in clock edges (the LAT parameter's default; 1 to 16, default 1)")
+    g.add_argument("--latency", type=int, default=None, metavar="N",
+                   help="memory read latency in clock edges (the LAT parameter's default; 1 to 16; default: the "
+                        "memory's read latency + 1, i.e. 1 for a memory whose data comes in the read's cycle)")
     g.add_argument("--transparent", action="store_true",
                    help="transparent test (Nicolaidis 1996): keeps the memory's contents; run 0 predicts a "
                         "signature, run 1 tests; only fail is reported (fail_addr/bits/cycle stay 0)")
@@ -45,9 +46,14 @@ def run(args) -> int:
     from ..report.compare import format_time
     from .common import load_test, memory_from_args
 
-    if not 1 <= args.latency <= MAX_LAT:
+    if args.latency is not None and not 1 <= args.latency <= MAX_LAT:
         raise InputError(f"--latency {args.latency}: give a read latency of 1 to {MAX_LAT} cycles")
     mem = memory_from_args(args)
+    if args.latency is None:        # read_latency counts cycles after the read's own edge
+        args.latency = mem.read_latency + 1
+        if args.latency > MAX_LAT:
+            raise InputError(f"read latency {mem.read_latency}: the controller takes at most {MAX_LAT - 1} "
+                             "cycles after the read (LAT 16)")
     test = load_test(args.test)
     out = sys.stdout
     if args.program_only:
@@ -66,6 +72,12 @@ def run(args) -> int:
     out.write(f"test: {ir.cycles:,} cycles, {ir.ops:,} operations, {format_time(ir.seconds)} at {mhz:g} MHz"
               + (" (transparent: signature prediction, then the test)\n" if ir.transparent else
                  f" ({ir.runs} background run{'s' if ir.runs != 1 else ''})\n"))
+    if mem.read_latency:
+        from ..model import schedule
+
+        out.write(f"read latency {mem.read_latency}: LAT {args.latency}; done rises {args.latency} cycles after the "
+                  f"last operation; grade and export count {schedule(test, mem).cycles:,} cycles (the test ends "
+                  "when the last read's data is back)\n")
     if res.area is not None:
         a = res.area
         if "skipped" in a:

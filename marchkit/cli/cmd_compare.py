@@ -201,12 +201,14 @@ def show_comparison(cmp, con) -> None:
     tiny = con.width < 80
     from rich import box
 
-    t = Table(show_edge=False, pad_edge=False, title="cost and coverage", title_justify="left",
+    from ..report import labels as L
+
+    t = Table(show_edge=False, pad_edge=False, title=L.SECTIONS["tests"], title_justify="left",
               title_style="bold", box=box.SIMPLE_HEAD if tiny else box.HEAVY_HEAD)
-    cols = ["cycles", "time", "score %", "cov %"] if narrow else \
-        ["ops", "cycles", "time", "detected", "score %", "coverage %"]
+    cols = [L.CYCLES, L.TIME, L.SCORE_PCT, L.narrow(L.COVERAGE_PCT)] if narrow else \
+        [L.OPERATIONS, L.CYCLES, L.TIME, L.DETECTED, L.SCORE_PCT, L.COVERAGE_PCT]
     if not tiny:
-        cols = ["length"] + cols
+        cols = [L.LENGTH] + cols
     body = []
     for r in rows:
         cov = _cov_text(r.coverage, r.detected, r.instances)
@@ -219,21 +221,22 @@ def show_comparison(cmp, con) -> None:
         body.append((r, cells))
     # numbers are never cut: each number column is at least as wide as its widest cell;
     # only the test names may wrap
-    t.add_column("test", overflow="fold")
+    t.add_column(L.TEST, overflow="fold")
     for i, col in enumerate(cols):
         w = max([len(col)] + [len(_plain(c[i])) for _, c in body])
         t.add_column(col, justify="right", no_wrap=True, min_width=w)
-    t.add_column("front", justify="center", no_wrap=True, min_width=5)
+    front_label = L.narrow(L.FRONT) if narrow else L.FRONT
+    t.add_column(front_label, justify="center", no_wrap=True, min_width=len(front_label))
     for r, cells in body:
         t.add_row(f"[bold]{r.label}[/bold]" if r.pareto else r.label, *cells,
                   "[bold]yes[/bold]" if r.pareto else "[dim]no[/dim]")
     con.print(t)
     if narrow:
-        con.print("[dim]score % = class-weighted score; cov % = total instance coverage[/dim]")
+        con.print(f"[dim]{L.NARROW_LEGEND}[/dim]")
 
     # coverage per class: as many class columns as the console is wide, in several tables
     # when there are more classes than fit
-    label_w = max([len("test")] + [len(r.label) for r in rows]) + 3
+    label_w = max([len(L.TEST)] + [len(r.label) for r in rows]) + 3
     chunks, cur, width = [], [], label_w
     for cls in cmp.classes:
         w = max(len(cls), 4) + 3
@@ -245,10 +248,10 @@ def show_comparison(cmp, con) -> None:
     if cur:
         chunks.append(cur)
     for n, part in enumerate(chunks):
-        title = "coverage per class (%)" + (f", part {n + 1} of {len(chunks)}" if len(chunks) > 1 else "")
+        title = L.SECTIONS["per_class"] + (f", part {n + 1} of {len(chunks)}" if len(chunks) > 1 else "")
         con.print(f"[bold]{title}[/bold]")
         c = Table(show_edge=False, pad_edge=False)
-        c.add_column("test", no_wrap=True)
+        c.add_column(L.TEST, no_wrap=True)
         for cls in part:
             c.add_column(cls, justify="right", no_wrap=True, min_width=4)
         for r in rows:
@@ -257,7 +260,7 @@ def show_comparison(cmp, con) -> None:
 
     front = cmp.front
     if len(front) > 1:
-        s = Table(show_edge=False, pad_edge=False, title="what each step along the front buys",
+        s = Table(show_edge=False, pad_edge=False, title=L.SECTIONS["steps"],
                   title_justify="left", title_style="bold")
         for col in ("from", "to"):
             s.add_column(col, no_wrap=True)

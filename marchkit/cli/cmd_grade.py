@@ -42,27 +42,10 @@ def fmt_clock(hz) -> str:
 
 
 def memory_line(mem) -> str:
-    from ..model import background_names
+    """The memory in one line (the same text as the HTML report's "memory")."""
+    from ..report.labels import memory_text
 
-    name = f"{mem.name}: " if mem.name else ""
-    scr = ""
-    if mem.scramble_bits is not None or mem.scramble_xor:
-        scr = ", scrambled"
-    bgs = background_names(mem)
-    return (f"{name}{mem.words} × {mem.bits} bit{'s' if mem.bits > 1 else ''}, mux {mem.mux} "
-            f"({mem.rows} rows × {mem.columns} columns{scr}), order {mem.order}, "
-            f"background{'s' if len(bgs) > 1 else ''} {', '.join(bgs)}, {fmt_clock(mem.clock_hz)}"
-            + dram_text(mem))
-
-
-def dram_text(mem) -> str:
-    if not mem.dram:
-        return ""
-    from ..faults import format_seconds
-
-    return (f", DRAM: refresh {format_seconds(mem.refresh)} {mem.refresh_scheme}"
-            f"{', running during delays' if mem.refresh_during_delays else ', suspended during delays'}, "
-            f"{mem.page} page")
+    return memory_text(mem)
 
 
 def element_label(test, index, short: bool = False) -> str:
@@ -135,7 +118,7 @@ def run(args) -> int:
     if args.report is not None:
         from ..report import write_html_report
 
-        write_html_report(res, args.report, force=args.force)
+        write_html_report(res, args.report, force=args.force, score=score, weights=weights)
     if args.json:
         from ..notation import format_notation
 
@@ -169,7 +152,9 @@ def show_retention(res, con, spread_text=None) -> None:
 
     rows = per_tau(res.kinds)
     if len(rows) > 1 or spread_text:
-        tt = Table(title="retention per τ", title_justify="left", show_edge=False, pad_edge=False)
+        from ..report.labels import SECTIONS
+
+        tt = Table(title=SECTIONS["retention"], title_justify="left", show_edge=False, pad_edge=False)
         for col in ("τ", "cells × values", "detected", "coverage"):
             tt.add_column(col, justify="left" if col == "τ" else "right")
         for r in rows:
@@ -182,14 +167,9 @@ def show_retention(res, con, spread_text=None) -> None:
 
 
 def score_line(score, weights, classes) -> str:
-    from ..grade.score import _pct
+    from ..report.labels import score_text
 
-    graded = [c for c in classes if c.instances]
-    equal = len({weights.get(c.cls, 1.0) for c in graded}) <= 1
-    how = "equal weights" if equal else "weights " + ", ".join(f"{c.cls}={weights.get(c.cls, 1.0):g}" for c in graded)
-    n = sum(1 for c in graded)
-    return (f"score   {_pct(score)} % "
-            f"(mean of the per-class coverages over {n} class{'es' if n != 1 else ''}, {how})")
+    return f"score   {score_text(score, weights, classes)}"
 
 
 def show_result(res, con, primitives=False, weights=None, score=None) -> None:
@@ -201,6 +181,7 @@ def show_result(res, con, primitives=False, weights=None, score=None) -> None:
     from rich.table import Table
 
     from ..notation import format_notation
+    from ..report import labels as L
     from ..report.compare import percent_text
 
     t = res.test
@@ -220,16 +201,17 @@ def show_result(res, con, primitives=False, weights=None, score=None) -> None:
     con.print(f"faults  {res.faults_spec}   pairs {res.pairs_spec}{tau_txt}   engine {res.engine}")
     if medium:
         con.print("elements " + "  ".join(element_label(t, i).replace(" ", "\u00a0") for i in range(len(t.elements))))
-    table = Table(show_edge=False, pad_edge=False, box=box.SIMPLE_HEAD if narrow else box.HEAVY_HEAD)
-    table.add_column("class", style="bold", no_wrap=True)
-    table.add_column("instances", justify="right", no_wrap=True)
+    table = Table(show_edge=False, pad_edge=False, box=box.SIMPLE_HEAD if narrow else box.HEAVY_HEAD,
+                  title=L.SECTIONS["classes"], title_justify="left", title_style="bold")
+    table.add_column(L.CLASS, style="bold", no_wrap=True)
+    table.add_column(L.INSTANCES, justify="right", no_wrap=True)
     if not narrow:
-        table.add_column("detected", justify="right", no_wrap=True)
-    table.add_column("coverage", justify="right", no_wrap=True)
-    table.add_column("first" if narrow else "first found in", no_wrap=True)
-    table.add_column("all by" if narrow else "all found by", no_wrap=True)
+        table.add_column(L.DETECTED, justify="right", no_wrap=True)
+    table.add_column(L.COVERAGE, justify="right", no_wrap=True)
+    table.add_column(L.narrow(L.FIRST) if narrow else L.FIRST, no_wrap=True)
+    table.add_column(L.narrow(L.ALL) if narrow else L.ALL, no_wrap=True)
     if not medium:
-        table.add_column("why some are missed")
+        table.add_column(L.WHY)
 
     def pct(cov, d, n):   # a partial coverage never reads 100 % or 0 %
         return percent_text(cov, 2, d, n) + "%"
@@ -252,40 +234,35 @@ def show_result(res, con, primitives=False, weights=None, score=None) -> None:
         table.add_row(*cells)
     tot = res.total
     table.add_section()
-    table.add_row("total", f"{tot.instances:,}", *([] if narrow else [f"{tot.detected:,}"]),
+    table.add_row(L.TOTAL, f"{tot.instances:,}", *([] if narrow else [f"{tot.detected:,}"]),
                   pct(tot.coverage, tot.detected, tot.instances), "", "", *([] if medium else [""]))
     con.print(table)
     if score is not None:
         con.print(score_line(score, weights or {}, res.classes))
+    if narrow:
+        con.print(f"[dim]{L.narrow(L.FIRST)} = {L.FIRST}; {L.narrow(L.ALL)} = {L.ALL}[/dim]")
     if reasons:
-        con.print("why some are missed:")
+        con.print(f"{L.WHY}:")
         for cls, why in reasons:
             con.print(f"  [bold]{cls}[/bold]: {why}")
     if res.empty_classes:
         con.print(f"no instances in this pair scope: {', '.join(res.empty_classes)}")
     if primitives and res.primitives:
-        pt = Table(title="fault kinds", title_justify="left", show_edge=False, pad_edge=False)
-        cols = ("kind", "class", "instances", "detected") + (() if medium else ("why some are missed",))
+        pt = Table(title=L.SECTIONS["kinds"], title_justify="left", title_style="bold", show_edge=False, pad_edge=False)
+        cols = tuple(c for c in L.GRADE_KIND_COLUMNS if not (medium and c == L.WHY))
         for col in cols:
-            pt.add_column(col, justify="right" if col in ("instances", "detected") else "left", no_wrap=col != "why some are missed")
+            pt.add_column(col, justify="right" if col in (L.INSTANCES, L.DETECTED, L.COVERAGE) else "left",
+                          no_wrap=col != L.WHY)
         for p in res.primitives:
-            pt.add_row(p.fault, p.cls, f"{p.instances:,}", f"{p.detected:,}", *(() if medium else (p.reason,)))
+            cov = p.detected / p.instances if p.instances else 1.0
+            pt.add_row(p.fault, p.cls, f"{p.instances:,}", f"{p.detected:,}", pct(cov, p.detected, p.instances),
+                       *(() if medium else (p.reason if p.detected < p.instances else "",)))
         con.print(pt)
     examples = res.missed_examples()
     if examples:
-        con.print("some undetected instances (an engineer's starting point for diagnosis):")
+        con.print(f"[bold]{L.SECTIONS['missed']}[/bold]: some undetected instances (an engineer's starting point "
+                  "for diagnosis)")
         for cls, text in examples:
             con.print(f"  [bold]{cls}[/bold]  {text}")
-    delays = len(t.delays)
-    acts = 0
-    if t.hammers:
-        from ..model import schedule
-
-        acts = sum(s.cycles // s.row_cycle for s in schedule(t, res.memory).segments if s.hammer is not None)
-    con.print(
-        f"cost    {t.ops_per_cell} ops per address per run · {res.ops:,} operations"
-        + (f" · {acts:,} hammer activations" if acts else "") + f" · {res.cycles:,} cycles"
-        f" · {fmt_time(res.seconds)} at {fmt_clock(res.memory.clock_hz)}"
-        + (f" (delays included: {delays} per run)" if delays else "")
-    )
+    con.print(f"cost    {L.cost_text(t, res.memory, res.ops, res.cycles, res.seconds)}")
     con.print(f"[dim]graded {res.total.instances:,} fault instances in {res.elapsed:.3g} s[/dim]")

@@ -88,6 +88,9 @@ def add_memory_options(p) -> None:
     g.add_argument("--clock", metavar="FREQ", help="clock with its unit (Hz, kHz, MHz, GHz), e.g. 200MHz; 1Hz to 100GHz (default 100MHz)")
     g.add_argument("--read-cycles", type=bounded_int(1, 1024), metavar="C", help="clock cycles per read, 1 to 1024 (default 1)")
     g.add_argument("--write-cycles", type=bounded_int(1, 1024), metavar="C", help="clock cycles per write, 1 to 1024 (default 1)")
+    g.add_argument("--read-latency", type=bounded_int(0, 64), metavar="N",
+                   help="pipelined reads: the data comes back N cycles after the read while the next operation "
+                        "is issued, 0 to 64 (default 0)")
     g.add_argument("--scramble-bits", metavar="LIST", help="address scrambling: physical bit i takes logical bit LIST[i]")
     g.add_argument("--scramble-xor", metavar="MASK", help="address scrambling: XOR mask applied after the bit order")
     g.add_argument("--neighbours", type=int, choices=(4, 8), help="physical neighbours: 4 (N/S/E/W) or 8 (with diagonals; default)")
@@ -112,7 +115,8 @@ def memory_from_args(args):
     flags = dict(
         words=args.words, bits=args.bits, mux=args.mux, order=args.order,
         backgrounds=args.backgrounds, clock=args.clock, read_cycles=args.read_cycles,
-        write_cycles=args.write_cycles, scramble_bits=args.scramble_bits,
+        write_cycles=args.write_cycles, read_latency=getattr(args, "read_latency", None),
+        scramble_bits=args.scramble_bits,
         scramble_xor=args.scramble_xor, neighbours=args.neighbours,
         refresh=getattr(args, "refresh", None), refresh_scheme=getattr(args, "refresh_scheme", None),
         refresh_during_delays=getattr(args, "refresh_during_delays", None), page=getattr(args, "page", None),

@@ -4,7 +4,7 @@ The grader needs only the first detection; diagnosis needs the whole syndrome: f
 instance and one scenario (the initial values of the cells it involves, and the direction
 each ⇕ element runs in), every compared read that returns something other than the expected
 word, at the cycle the exported stimulus compares it (``marchkit.export``: the last cycle of
-the read).
+the read, plus the memory's ``read_latency``).
 
 The behaviour is the oracle's (:class:`marchkit.engine.core.Run` with the family's oracle
 from the registry, the semantics in DEVELOPERS.md), run on the *projected* words only: the
@@ -57,7 +57,7 @@ class _Recorder(Run):
         ctx = self.ctx
         plan = _plan(ctx)
         out: list[Compare] = []
-        rc1 = ctx.mem.read_cycles - 1
+        rc1 = ctx.mem.read_cycles - 1 + getattr(ctx.mem, "read_latency", 0)   # issue → compare cycle
         n1 = ctx.n - 1
         fault = self.fault
         access = self.access

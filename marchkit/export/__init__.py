@@ -113,7 +113,7 @@ def export(test, mem, out: str, fmt: str | None = None, *, physical: bool = Fals
     generated testbench injects into its SRAM model by default.
 
     ``pins``: a :class:`~marchkit.export.pins.PinMap` (signal names, polarity, chip enable,
-    byte enables, compare strobe) for the STIL writer; the default names otherwise.
+    byte enables, compare strobe) for the STIL and VCD writers; the default names otherwise.
 
     ``max_bytes``: refuse, before writing, an export estimated larger than this (default
     :data:`.budget.DEFAULT_LIMIT`, 100 MB; ``0`` for no limit).  The estimate is in
@@ -140,8 +140,8 @@ def export(test, mem, out: str, fmt: str | None = None, *, physical: bool = Fals
             f"{fmt} writes every clock cycle, so it takes at most {EXPAND_LIMIT:,} operations per address "
             "visit — export it as stil (repeats become loops) or shorten the repeat")
     if pins is not None:
-        if fmt != "stil" and not pins.is_default:
-            raise OutputError("a pin map (signal names, polarity, enables, strobe) applies to --format stil")
+        if fmt not in ("stil", "vcd") and not pins.is_default:
+            raise OutputError("a pin map (signal names, polarity, enables, strobe) applies to --format stil and vcd")
         plan.pins = pins
     from .budget import DEFAULT_LIMIT, check_budget
 

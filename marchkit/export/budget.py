@@ -52,7 +52,8 @@ def estimate_bytes(plan, fmt: str) -> int:
     if fmt == "hex":
         # an idle run is one word per 2^32 - 1 cycles (marchkit.export.hexfile)
         idle_words = sum(-(-s.cycles // ((1 << 32) - 1)) for s in plan.segments if s.is_delay)
-        return 14000 + active * (12 + ha + hb) + idle_words * (12 + ha + hb)   # + testbench and SRAM model text
+        per = 12 + ha + hb + (hb if getattr(plan, "latency", 0) else 0)   # pipelined reads: expected data apart
+        return 14000 + active * per + idle_words * per   # + testbench and SRAM model text
     return active + idle
 
 

@@ -15,12 +15,22 @@ this layout):
   several idle words);
 * end: the payload is 0.
 
+Pipelined reads (``read_latency`` L > 0) need the expected data on a later cycle than the read,
+beside the next operation, so the words get one more field: ``P = max(ceil(A/4) + 3·ceil(B/4),
+8)``, from the low end the compare mask, the expected data, the write data, the address; a
+write or read word carries the compare that falls in its cycle (L cycles after a read's last
+cycle), kind ``3`` is a cycle that issues nothing and only compares (the first L cycles of a
+delay, and the drain at the end of the test).  The testbench's SRAM model then has ``LAT``
+= L + 1.
+
 Testbench (``NAME_tb.v``) and model (``NAME_sram.v``) are Verilog-2001.  The testbench reads
 the pattern with ``$readmemh``, drives one word per clock cycle (an idle word for its count of
 cycles) into the model and compares the read data with ``expect`` under ``mask``; it stops
 with ``$fatal`` at the first failing compare, printing ``FAIL at cycle N`` where ``N`` is the
-cycle the failing read began (the cycle the fault simulators report), or ends with
-``PASS: C cycles``.  Plusargs: ``+pattern=FILE`` (default: the file written with it, in the
+cycle the failing read began (the cycle the fault simulators report) and the cycle it was
+compared in, or ends with ``PASS: C cycles``.  The log writes cycles (and bit numbers, counts)
+in decimal and every address, data word and mask in hexadecimal, zero-padded to the field's
+width — as the csv export and the fail logs of ``marchkit diagnose`` do.  Plusargs: ``+pattern=FILE`` (default: the file written with it, in the
 current directory), ``+stuck_word=W +stuck_bit=B +stuck_value=V`` (a stuck-at cell in the
 model; ``W`` is the address as it is in the pattern, so physical after ``--physical``; W = −1:
 fault-free), ``+all_failures`` (report every failing compare, then fail).
@@ -41,7 +51,7 @@ import numpy as np
 
 from .. import __version__
 from ..rtl import comment_text, identifier, sram_model, string_literal
-from .text import Row, hex_text, hex_width, put_address, put_data, put_slotwise, table
+from .text import Row, hex_text, hex_width, put_address, put_data, put_rows, put_slotwise, table
 
 MAX_IDLE = (1 << 32) - 1
 
@@ -49,14 +59,30 @@ MAX_IDLE = (1 << 32) - 1
 def layout(plan) -> dict:
     ha = hex_width(plan.address_bits)
     hd = hex_width(plan.bits)
+    if getattr(plan, "latency", 0):        # pipelined: write data and expected data apart
+        pd = max(ha + 3 * hd, 8)
+        return {"ha": ha, "hd": hd, "pd": pd, "digits": 1 + pd, "word_bits": 4 * (1 + pd),
+                "mask_lsb": 0, "expect_lsb": 4 * hd, "data_lsb": 8 * hd, "addr_lsb": 12 * hd,
+                "fields": 3}
     pd = max(ha + 2 * hd, 8)
     return {"ha": ha, "hd": hd, "pd": pd, "digits": 1 + pd, "word_bits": 4 * (1 + pd),
-            "mask_lsb": 0, "data_lsb": 4 * hd, "addr_lsb": 8 * hd}
+            "mask_lsb": 0, "data_lsb": 4 * hd, "addr_lsb": 8 * hd, "fields": 2}
 
 
 def layout_comment(plan, lay) -> str:
     A, B = plan.address_bits, plan.bits
     W = lay["word_bits"]
+    if lay["fields"] == 3:
+        return "\n".join([
+            f"// marchkit {__version__} $readmemh pattern: {comment_text(plan.describe())}",
+            f"// {plan.cycles} clock cycles; one {W}-bit word ({lay['digits']} hex digits) per line",
+            f"// pipelined reads: the data of a read is compared {plan.latency} cycle(s) after its last cycle",
+            f"// bits [{W - 1}:{W - 4}] kind: 1 write cycle, 2 read cycle, 3 compare only, 0 idle run, f end",
+            f"// write/read/compare: address [{lay['addr_lsb'] + A - 1}:{lay['addr_lsb']}], "
+            f"write data [{lay['data_lsb'] + B - 1}:{lay['data_lsb']}], "
+            f"expected data [{lay['expect_lsb'] + B - 1}:{lay['expect_lsb']}], compare mask [{B - 1}:0]",
+            "// idle run: number of idle cycles in bits [31:0]",
+        ]) + "\n"
     return "\n".join([
         f"// marchkit {__version__} $readmemh pattern: {comment_text(plan.describe())}",
         f"// {plan.cycles} clock cycles; one {W}-bit word ({lay['digits']} hex digits) per line",
@@ -72,16 +98,31 @@ def write_hex(plan, f, **_) -> dict:
     lay = layout(plan)
     ha, hd, pd = lay["ha"], lay["hd"], lay["pd"]
     f.write(layout_comment(plan, lay).encode())
-    pad = "0" * (pd - ha - 2 * hd)
+    nf = lay["fields"]
+    pad = "0" * (pd - ha - nf * hd)
     zd = "0" * hd
     ones = hex_text([plan.all_ones], plan.bits)[0].decode()
     kinds = table([f"1{pad}", f"2{pad}"])
-    row = Row().field("kind", 1 + len(pad)).field("address", ha).field("data", 2 * hd).lit("\n")
+    row = Row().field("kind", 1 + len(pad)).field("address", ha).field("data", nf * hd).lit("\n")
     data_tabs: dict[int, np.ndarray] = {}
     words = 0
+    pipe = None
+    if nf == 3:                 # pipelined reads: expect and mask come from the Pipeline
+        from .stream import Pipeline
+
+        pipe = Pipeline(plan)
+        ctexts = [zd + zd] + [w.decode() + ones for w in hex_text(plan.cmp_words, plan.bits)]
+        ctab = table(ctexts)
+        za = "0" * ha
     for b in plan.blocks():
         if b.is_idle:
             left = b.count
+            if pipe is not None:
+                head = pipe.idle(left)
+                if head.any():          # cycles that only compare the data of earlier reads
+                    f.write("".join(f"3{pad}{za}{zd}{ctexts[int(c)]}\n" for c in head).encode())
+                    words += len(head)
+                    left -= len(head)
             while left:
                 n = min(left, MAX_IDLE)
                 f.write(f"0{n:0{pd}x}\n".encode())
@@ -93,12 +134,17 @@ def write_hex(plan, f, **_) -> dict:
             texts = []
             for w in hex_text(plan.words[seg.run], plan.bits):
                 w = w.decode()
-                texts += [w + zd, w + zd, w + ones]      # write, read, compared read
+                if pipe is None:
+                    texts += [w + zd, w + zd, w + ones]      # write, read, compared read
+                else:                                        # write data; the compare comes later
+                    texts += [w + zd + zd, zd * 3, zd * 3]
             data_tabs[seg.run] = table(texts)
         buf = row.buffer(b.count)
         put_slotwise(row, buf, "kind", b, kinds[seg.slot_re])
         put_address(row, buf, "address", b, "hex")
         put_data(row, buf, "data", b, data_tabs[seg.run])
+        if pipe is not None:
+            put_rows(buf, row.off["data"] + hd, ctab, pipe.op(b))
         f.write(buf)
         words += b.count
     f.write(("f" + "0" * pd + "\n").encode())
@@ -117,7 +163,7 @@ def sram_text(plan, sram: str) -> str:
     head = (f"{sram}.v: behavioural synchronous SRAM generated by marchkit {__version__}\n"
             f"for {plan.mem.name or 'memory'} {plan.mem.words}x{plan.mem.bits}.\n"
             "The testbench makes one cell stuck at a value with the stuck_at task (+stuck_word ...).")
-    return sram_model(sram, plan.address_bits, plan.bits, plan.mem.words, 1, head)
+    return sram_model(sram, plan.address_bits, plan.bits, plan.mem.words, 1 + getattr(plan, "latency", 0), head)
 
 
 def testbench_text(plan, tb: str, sram: str, hex_name: str, nwords: int, stuck=None) -> str:
@@ -128,13 +174,32 @@ def testbench_text(plan, tb: str, sram: str, hex_name: str, nwords: int, stuck=N
     per = period_ps(plan.mem.clock_hz)
     hex_shown = comment_text(hex_name)
     al, dl = lay["addr_lsb"], lay["data_lsb"]
+    lat = getattr(plan, "latency", 0)
+    shift = ("\n            for (j = READ_LATENCY; j > 0; j = j - 1)\n                apipe[j] = apipe[j - 1];"
+             "\n            apipe[0] = a;\n            cmp_a = apipe[READ_LATENCY];") if lat else ""
+    if lay["fields"] == 3:          # pipelined: every word may carry a compare
+        el = lay["expect_lsb"]
+        cmp = (f"expect = w[{el + B - 1}:{el}];\n                    mask = w[{B - 1}:0];\n                    ")
+        k1 = f"a = w[{al + A - 1}:{al}];\n                    d = w[{dl + B - 1}:{dl}];\n                    {cmp}we = 1'b1;"
+        k2 = f"a = w[{al + A - 1}:{al}];\n                    {cmp}re = 1'b1;"
+        k3 = f"""
+                4'h3: begin
+                    {cmp}run_cycle;
+                end"""
+    else:
+        k1 = f"a = w[{al + A - 1}:{al}];\n                    d = w[{dl + B - 1}:{dl}];\n                    we = 1'b1;"
+        k2 = (f"a = w[{al + A - 1}:{al}];\n                    expect = w[{dl + B - 1}:{dl}];\n"
+              f"                    mask = w[{B - 1}:0];\n                    re = 1'b1;")
+        k3 = ""
     return f"""// {tb}.v: self-checking testbench generated by marchkit {__version__}
 // Replays {hex_shown} ({plan.cycles} cycles of {comment_text(plan.test.display_name)}) against {sram}.v.
 //   iverilog -o {tb}.vvp {tb}.v {sram}.v && vvp -n {tb}.vvp
 // Plusargs: +pattern=FILE  +stuck_word=W +stuck_bit=B +stuck_value=V (W: the address as in the
 // pattern; -1 = fault-free)  +all_failures (report every failing compare).
 // Ends with "PASS: N cycles", or $fatal after "FAIL at cycle N" (N: the cycle the failing
-// read began).  Clock period {per} ps{'' if Fraction(10**12) / plan.mem.clock_hz == per else ' (rounded)'}.
+// read began).  The log writes cycles, bit numbers and counts in decimal, addresses, data and
+// masks in hexadecimal (zero-padded), as the csv export and fail logs do.{f"  Reads are pipelined: the data comes {lat} cycle(s) after the read's last cycle (SRAM LAT = {lat + 1})." if lat else ""}
+// Clock period {per} ps{'' if Fraction(10**12) / plan.mem.clock_hz == per else ' (rounded)'}.
 `timescale 1ps/1ps
 module {tb};
     localparam AW = {A};
@@ -144,6 +209,7 @@ module {tb};
     localparam NWORDS = {nwords};
     localparam [63:0] CYCLES = 64'd{plan.cycles};
     localparam READ_CYCLES = {plan.mem.read_cycles};
+    localparam READ_LATENCY = {lat};
     localparam PERIOD = {per};
     localparam HALF = PERIOD / 2;
     localparam STROBE = (PERIOD * 3) / 4;
@@ -155,6 +221,10 @@ module {tb};
     reg clk;
     reg [AW-1:0] a;
     reg [DW-1:0] d;
+    reg [AW-1:0] sa;        // the stuck cell's address, printed in hex
+    reg [AW-1:0] cmp_a;     // the address of the read compared in this cycle (pipelined reads)
+    reg [AW-1:0] apipe [0:{lat}];   // addresses of the last READ_LATENCY + 1 cycles
+    integer j;
     reg [DW-1:0] expect;
     reg [DW-1:0] mask;
     reg we;
@@ -172,16 +242,16 @@ module {tb};
     );
 
     task run_cycle;
-        begin
+        begin{shift}
             #(HALF) clk = 1'b1;
             #(STROBE - HALF);
             if (((q ^ expect) & mask) !== {{DW{{1'b0}}}}) begin
                 failures = failures + 1;
                 if (failures == 1)
-                    first_fail = cycle - (READ_CYCLES - 1);
+                    first_fail = cycle - (READ_CYCLES - 1) - READ_LATENCY;
                 if (all || failures == 1)
-                    $display("FAIL at cycle %0d: address %h expected %b read %b mask %b (compared in cycle %0d)",
-                             cycle - (READ_CYCLES - 1), a, expect, q, mask, cycle);
+                    $display("FAIL at cycle %0d: address %h expected %h read %h mask %h (compared in cycle %0d)",
+                             cycle - (READ_CYCLES - 1) - READ_LATENCY, {"cmp_a" if lat else "a"}, expect, q, mask, cycle);
                 if (!all)
                     $fatal(1, "FAILED: first failing compare at cycle %0d", first_fail);
             end
@@ -203,8 +273,10 @@ module {tb};
         dut.clear;
         if (sw >= 0)
             dut.stuck_at(sw, sb, sv[0]);
-        if (sw >= 0)
-            $display("stuck-at-%0d cell: address %0d bit %0d", sv, sw, sb);
+        if (sw >= 0) begin
+            sa = sw;
+            $display("stuck-at-%0d cell: address %h bit %0d", sv, sa, sb);
+        end
         $readmemh(file, pattern);
         clk = 1'b0;
         cycle = 0;
@@ -224,18 +296,13 @@ module {tb};
                     repeat (count) run_cycle;
                 end
                 4'h1: begin
-                    a = w[{al + A - 1}:{al}];
-                    d = w[{dl + B - 1}:{dl}];
-                    we = 1'b1;
+                    {k1}
                     run_cycle;
                 end
                 4'h2: begin
-                    a = w[{al + A - 1}:{al}];
-                    expect = w[{dl + B - 1}:{dl}];
-                    mask = w[{B - 1}:0];
-                    re = 1'b1;
+                    {k2}
                     run_cycle;
-                end
+                end{k3}
                 4'hf: done = 1;
                 default: $fatal(1, "pattern word %0d is not a pattern word: %h", i, w);
             endcase

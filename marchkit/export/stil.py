@@ -23,6 +23,11 @@ low/high, ``CLK`` is ``P``: one pulse); a read is compared (``H``/``L``) in its 
 only, other cycles have ``X`` on ``DOUT``.  An idle run of two cycles or more (a delay) is
 ``Loop N { V { … } }``.  ``Ann`` annotations mark each background run, element and delay.
 The number of cycles (a ``Loop`` counting ``N``) equals ``Schedule.cycles``.
+
+With pipelined reads (``read_latency`` L > 0) ``DOUT`` carries ``H``/``L`` on the compare cycle,
+L cycles after the read's last cycle, in the ``V`` of whatever is issued then (``X`` on the
+read's own cycles); the first L cycles of an idle run after reads are written as single
+``V`` statements, and the pattern may end with idle drain cycles (annotated) that only compare.
 """
 
 from __future__ import annotations
@@ -33,7 +38,7 @@ from fractions import Fraction
 import numpy as np
 
 from .. import __version__
-from .text import Row, bin_text, put_address, put_data, table
+from .text import Row, bin_text, put_address, put_data, put_rows, table
 
 WFT = "cycle"
 PATTERN = "march"
@@ -122,6 +127,8 @@ def header(plan) -> str:
     wave_text = "\n".join(waves)
     exact = (Fraction(period) * 10**18).denominator == 1          # at most 9 decimals of ns
     period_note = "" if exact else f"; the clock period is {time_text(period)[1:-1]} rounded"
+    lat_note = (f"; pipelined reads: DOUT is compared {plan.latency} cycle(s) after the read's last cycle"
+                if plan.latency else "")
     pin_note = "" if pm.is_default else f"\n    Ann {{* pins: {ann_text(_pin_text(pm))} *}}"
     return f"""STIL 1.0;
 
@@ -129,7 +136,7 @@ Header {{
     Title {quoted(f"marchkit: {plan.test.display_name} on {mem.name or 'memory'}")};
     Source {quoted(f"marchkit {__version__}")};
     Ann {{* {ann_text(plan.describe())} *}}
-    Ann {{* {plan.cycles} cycles in {plan.runs} background run(s){period_note} *}}{pin_note}
+    Ann {{* {plan.cycles} cycles in {plan.runs} background run(s){period_note}{lat_note} *}}{pin_note}
 }}
 
 Signals {{
@@ -185,6 +192,14 @@ def write_stil(plan, f, **_) -> dict:
     data_tabs: dict[int, np.ndarray] = {}
     vectors = loops = 0
     last_run = None
+    pipe = None
+    if plan.latency:            # pipelined reads: DOUT comes from the Pipeline
+        from .stream import Pipeline
+
+        pipe = Pipeline(plan)
+        ctexts = [x_d] + [t.decode() for t in bin_text(plan.cmp_words, B, b"LH")]
+        ctab = table(ctexts)
+        doff = row.off["data"] + len(probe) - B - 1          # DOUT's value in the data field
     for b in plan.blocks():
         seg = b.seg
         if seg.run != last_run:
@@ -192,19 +207,29 @@ def write_stil(plan, f, **_) -> dict:
             last_run = seg.run
         if getattr(b, "looped", False):
             writer = _write_hammer if seg.element is None else _write_looped
-            v, lo = writer(plan, seg, f, x_d, zero_d)
+            v, lo = writer(plan, seg, f, x_d, zero_d, extra, pipe)
             vectors += v
             loops += lo
             continue
         if b.is_idle:
-            item = plan.test.items[seg.item]
-            f.write(f"    Ann {{* {ann_text(format_item(item, ascii=True))}: {b.count} idle cycles *}}\n".encode())
-            if b.count == 1:
-                f.write(f"    {idle_v}\n".encode())
+            if getattr(seg, "drain", False):
+                what = f"read latency {plan.latency}: waiting for the last read's data"
             else:
-                f.write(f"    Loop {b.count} {{ {idle_v} }}\n".encode())
+                what = ann_text(format_item(plan.test.items[seg.item], ascii=True))
+            f.write(f"    Ann {{* {what}: {b.count} idle cycles *}}\n".encode())
+            count = b.count
+            if pipe is not None:
+                head = pipe.idle(count)
+                if head.any():
+                    f.write("".join(f"    {idle_v[:-len(x_d) - 3]}{ctexts[int(c)]}; }}\n" for c in head).encode())
+                    vectors += len(head)
+                    count -= len(head)
+            if count == 1:
+                f.write(f"    {idle_v}\n".encode())
+            elif count:
+                f.write(f"    Loop {count} {{ {idle_v} }}\n".encode())
                 loops += 1
-            vectors += 1
+            vectors += 1 if count else 0
             continue
         if b.start == seg.start:
             el = plan.test.elements[seg.element]
@@ -217,6 +242,8 @@ def write_stil(plan, f, **_) -> dict:
             texts = []
             for d, hl in zip(d01, dhl):
                 d, hl = d.decode(), hl.decode()
+                if pipe is not None:
+                    hl = x_d            # the compare comes L cycles later (overwritten below)
                 texts += [f"{d}; {we}=1; {re_}=0;{extra(1, 1)} DOUT={x_d};",
                           f"{zero_d}; {we}=0; {re_}=1;{extra(1, 0)} DOUT={x_d};",
                           f"{zero_d}; {we}=0; {re_}=1;{extra(1, 0)} DOUT={hl};"]
@@ -224,52 +251,77 @@ def write_stil(plan, f, **_) -> dict:
         buf = row.buffer(b.count)
         put_address(row, buf, "address", b, "bin")
         put_data(row, buf, "data", b, data_tabs[seg.run])
+        if pipe is not None:
+            put_rows(buf, doff, ctab, pipe.op(b))
         f.write(buf)
         vectors += b.count
     f.write(b"}\n")
     return {"vectors": vectors, "loops": loops}
 
 
-def _write_hammer(plan, seg, f, x_d, zero_d):
+def _write_hammer(plan, seg, f, x_d, zero_d, extra, pipe=None):
     """A hammer item, row by row: ``Loop count { … }`` around one round, each activation a
-    read of the first word of the target row (its data not compared)."""
+    read of the first word of the target row (its data not compared).  With pipelined reads
+    the first rounds are written out until the compares still in flight have landed."""
     from ..notation.printer import format_item
 
     mem = plan.mem
-    A = plan.address_bits
+    A, B = plan.address_bits, plan.bits
     pm = _pins(plan)
-    nbe = pm.byte_count(plan.bits)
-    tail = (f" {pm.chip_enable}=1;" if pm.chip_enable else "") + (f" BEN={'0' * nbe};" if nbe else "")
+    clk, we, re_ = pm.clock, pm.write_enable, pm.read_enable
+    cw = plan.cmp_words
     h = seg.hammer
     f.write(f"    Ann {{* hammer {ann_text(format_item(h, ascii=True))}: each activation a read, not "
             f"compared, {seg.row_cycle} cycle(s) *}}\n".encode())
+
+    def dout(code: int) -> str:
+        return format(cw[code - 1], f"0{B}b").replace("0", "L").replace("1", "H") if code else x_d
+
     R, mux = mem.rows, mem.mux
+    lat = plan.latency
     vectors = loops = 0
     for p in range(R):
         row = R - 1 - p if seg.down else p
-        one = []
+        heads = []
         for k in h.offsets:
             tp = ((row + k) % R) * mux            # the first word of the target row
             a = tp if plan.physical else int(mem.logical_word(tp))
-            addr = format(a, f"0{A}b")
-            one += [f"V {{ {pm.clock}=P; ADDR={addr}; DIN={zero_d}; {pm.write_enable}=0; "
-                    f"{pm.read_enable}=1;{tail} DOUT={x_d}; }}"] * seg.row_cycle
-        if h.count == 1:
-            f.write("".join(f"    {v}\n" for v in one).encode())
-        else:
-            f.write(f"    Loop {h.count} {{ {' '.join(one)} }}\n".encode())
-            loops += 1
-        vectors += len(one)
+            heads += [f"{clk}=P; ADDR={format(a, f'0{A}b')}; DIN={zero_d}; {we}=0; {re_}=1;{extra(1, 0)}"] \
+                * seg.row_cycle
+        issued = np.zeros(len(heads), np.int64)
+        parts = []
+        explicit = 0 if pipe is None else min(h.count, -(-lat // len(heads)))
+        for _ in range(explicit):
+            got = pipe.feed(issued)
+            parts += [f"    V {{ {hd} DOUT={dout(int(c))}; }}\n" for hd, c in zip(heads, got)]
+            vectors += len(heads)
+        looped = h.count - explicit
+        if looped:
+            got = pipe.feed(issued) if pipe is not None else issued
+            one = [f"V {{ {hd} DOUT={dout(int(c))}; }}" for hd, c in zip(heads, got)]
+            if looped == 1:
+                parts += [f"    {v}\n" for v in one]
+            else:
+                parts.append(f"    Loop {looped} {{ " + " ".join(one) + " }\n")
+                loops += 1
+            vectors += len(one)
+        f.write("".join(parts).encode())
     return vectors, loops
 
 
-def _write_looped(plan, seg, f, x_d, zero_d):
+def _write_looped(plan, seg, f, x_d, zero_d, extra, pipe=None):
     """An element with hammer-length repeats, visit by visit, each run of copies of an
     operation as ``Loop N { ... }`` around the vectors of one copy (so the file grows with
-    the number of addresses, not with the repeat count)."""
+    the number of addresses, not with the repeat count).
+
+    With pipelined reads (``pipe``) a copy's compare lands L cycles later: the first
+    ``ceil(L / cycles of a copy)`` copies of a run are written out (they carry the compares of
+    what came before), then the rest is one loop whose body is the same for every copy (it
+    compares the copy issued L cycles earlier, the same operation on the same word)."""
     from ..notation.printer import format_item
 
     mem = plan.mem
+    pm = _pins(plan)
     A, B = plan.address_bits, plan.bits
     el = plan.test.elements[seg.element]
     note = " run as up" if seg.order == "any" else ""
@@ -277,7 +329,14 @@ def _write_looped(plan, seg, f, x_d, zero_d):
     n = mem.words
     words = plan.words[seg.run]
     cls_up = plan.cls_up[seg.run]
+    base = plan.cmp_base[seg.run]
+    lat = plan.latency
     vectors = loops = 0
+    cw, clk, we, re_ = plan.cmp_words, pm.clock, pm.write_enable, pm.read_enable
+
+    def dout(code: int) -> str:
+        return format(cw[code - 1], f"0{B}b").replace("0", "L").replace("1", "H") if code else x_d
+
     for p in range(n):
         i = n - 1 - p if seg.down else p
         addr = format(int(plan.addr_up[i]), f"0{A}b")
@@ -287,15 +346,31 @@ def _write_looped(plan, seg, f, x_d, zero_d):
             word = words[2 * cls + r.value]
             d = format(word, f"0{B}b")
             if r.kind == "w":
-                one = [f"V {{ CLK=P; ADDR={addr}; DIN={d}; WE=1; RE=0; DOUT={x_d}; }}"] * r.each
+                heads = [f"{clk}=P; ADDR={addr}; DIN={d}; {we}=1; {re_}=0;{extra(1, 1)}"] * r.each
             else:
-                hl = d.replace("0", "L").replace("1", "H") if compared else x_d
-                one = ([f"V {{ CLK=P; ADDR={addr}; DIN={zero_d}; WE=0; RE=1; DOUT={x_d}; }}"] * (r.each - 1)
-                       + [f"V {{ CLK=P; ADDR={addr}; DIN={zero_d}; WE=0; RE=1; DOUT={hl}; }}"])
-            if r.repeat == 1:
+                heads = [f"{clk}=P; ADDR={addr}; DIN={zero_d}; {we}=0; {re_}=1;{extra(1, 0)}"] * r.each
+            issued = np.zeros(r.each, np.int64)
+            if r.kind == "r" and compared:
+                issued[-1] = 1 + base + 2 * cls + r.value
+            if pipe is None:
+                one = [f"V {{ {h} DOUT={dout(int(c))}; }}" for h, c in zip(heads, issued)]
+                explicit, looped = 0, r.repeat
+            else:
+                explicit = min(r.repeat, -(-lat // r.each))
+                for _ in range(explicit):
+                    got = pipe.feed(issued)
+                    parts += [f"    V {{ {h} DOUT={dout(int(c))}; }}\n" for h, c in zip(heads, got)]
+                    vectors += r.each
+                looped = r.repeat - explicit
+                if looped:
+                    got = pipe.feed(issued)      # the same in every later copy: the carry is periodic
+                    one = [f"V {{ {h} DOUT={dout(int(c))}; }}" for h, c in zip(heads, got)]
+            if not looped:
+                continue
+            if looped == 1:
                 parts += [f"    {v}\n" for v in one]
             else:
-                parts.append(f"    Loop {r.repeat} {{ " + " ".join(one) + " }\n")
+                parts.append(f"    Loop {looped} {{ " + " ".join(one) + " }\n")
                 loops += 1
             vectors += len(one)
         f.write("".join(parts).encode())

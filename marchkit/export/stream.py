@@ -24,6 +24,16 @@ Idle cycles (delays, ``ceil(seconds × clock)`` of them) have ``action`` ``idle`
 op, and all of address, enables and data at 0.
 
 ⇕ elements run as ⇑ — the canonical order in which the simulators report first detections.
+
+Pipelined reads (``Memory.read_latency`` L > 0): a read is issued like any operation and the
+next operation follows in the next cycle, but its data comes back L cycles after the read's
+last cycle.  ``expect`` and ``mask`` then belong to that later cycle (the compare cycle), while
+the address, enables and write data on it already belong to the operation issued there; on
+the read's own cycles ``expect`` and ``mask`` are 0.  When the test's last compared read is
+not followed by L cycles of writes or delays, the stream ends with idle *drain* cycles
+(``Schedule.drain``, a :class:`DelayPlan` with ``drain=True``) that carry only those compares.
+Writers get the compare of each cycle from :class:`Pipeline` (codes into
+:attr:`Plan.cmp_words`); with L = 0 none of this is used and the stream is as above.
 """
 
 from __future__ import annotations
@@ -90,6 +100,7 @@ class DelayPlan:
     start: int
     cycles: int
     seconds: object         # Fraction
+    drain: bool = False     # the idle cycles at the end that wait for the last read's data
 
     is_delay = True
 
@@ -364,8 +375,19 @@ class Plan:
                 slot_we, slot_re, slot_cmp, tuple(actions), len(s.op_offsets), kcode,
                 3 * slot_value + kcode,
             ))
+        if self.sched.drain:
+            last = self.sched.segments[-1]
+            segs.append(DelayPlan(len(segs), last.run, None, last.start + last.cycles, self.sched.drain,
+                                  None, drain=True))
         self.segments = tuple(segs)
         self.runs = self.sched.runs
+        # pipelined reads: every data word of every run, for the compare codes of Pipeline
+        self.latency = int(getattr(mem, "read_latency", 0))
+        self.cmp_base = []
+        self.cmp_words: list[int] = []
+        for words in self.words:
+            self.cmp_base.append(len(self.cmp_words))
+            self.cmp_words.extend(words)
 
     # ---- figures ---------------------------------------------------------------------
     @property
@@ -473,25 +495,73 @@ class Plan:
 
     def vectors(self) -> Iterator[Vector]:
         """The cycles one by one as :class:`Vector` (convenient, slow: for small tests)."""
+        pipe = Pipeline(self) if self.latency else None
+        cw = self.cmp_words
         for b in self.blocks():
             if b.is_idle:
-                for c in range(b.start, b.start + b.count):
-                    yield Vector(c, b.run, None, None, "idle", 0, 0, 0, 0, 0, 0)
+                head = pipe.idle(b.count) if pipe else ()
+                for i, c in enumerate(range(b.start, b.start + b.count)):
+                    code = int(head[i]) if i < len(head) else 0
+                    yield Vector(c, b.run, None, None, "idle", 0, 0, 0, 0,
+                                 cw[code - 1] if code else 0, self.all_ones if code else 0)
                 continue
             seg = b.seg
             words = self.words[seg.run]
             slots = b.slot_index
             dsel = b.dsel
+            codes = pipe.op(b) if pipe else None
             for i in range(b.count):
                 s = int(slots[i])
                 d = words[int(dsel[i])]
                 we = int(seg.slot_we[s])
                 re = int(seg.slot_re[s])
+                if pipe is None:
+                    expect, mask = (d if re else 0), (self.all_ones if seg.slot_compare[s] else 0)
+                else:
+                    code = int(codes[i])
+                    expect, mask = (cw[code - 1], self.all_ones) if code else (0, 0)
                 yield Vector(
                     b.start + i, seg.run, seg.element, int(seg.slot_op[s]), seg.slot_action[s],
-                    int(b.address[i]), we, re, d if we else 0, d if re else 0,
-                    self.all_ones if seg.slot_compare[s] else 0,
+                    int(b.address[i]), we, re, d if we else 0, expect, mask,
                 )
+
+
+class Pipeline:
+    """The compares of a stream with pipelined reads (``read_latency`` L > 0), block by block.
+
+    A compare code is 0 (nothing compared) or ``1 + i`` with ``plan.cmp_words[i]`` the word
+    the read must return, compared in all bits.  Feed the blocks of ``plan.blocks()`` in
+    order: :meth:`op` gives, per cycle of an :class:`OpBlock`, the code of the compare on that
+    cycle (the read whose data comes back then, issued L cycles earlier and possibly in an
+    earlier block); :meth:`idle` gives the codes of the first ``min(L, count)`` cycles of an
+    idle block (every later cycle of it compares nothing)."""
+
+    def __init__(self, plan):
+        self.plan = plan
+        self.lat = plan.latency
+        self.carry = np.zeros(self.lat, np.int64)     # codes of the last L cycles issued
+
+    def issued(self, b) -> np.ndarray:
+        """Code of the compare each cycle of block ``b`` issues (before the shift)."""
+        seg = b.seg
+        cmp = b.per_slot(seg.slot_compare)
+        codes = (1 + self.plan.cmp_base[seg.run] + b.dsel.astype(np.int64)) * cmp
+        return np.broadcast_to(codes, (b.count,)) if np.ndim(codes) == 0 else codes
+
+    def op(self, b) -> np.ndarray:
+        return self.feed(self.issued(b))
+
+    def feed(self, issued: np.ndarray) -> np.ndarray:
+        """The compares on the cycles that issue ``issued`` (codes per cycle, in order)."""
+        n = issued.shape[0]
+        full = np.concatenate([self.carry, issued])
+        self.carry = full[n:].copy()
+        return full[:n]
+
+    def idle(self, count: int) -> np.ndarray:
+        head = self.carry[:count].copy()
+        self.carry = np.concatenate([self.carry[count:], np.zeros(min(count, self.lat), np.int64)])
+        return head
 
 
 def expand(test, mem, physical: bool = False) -> Iterator[Vector]:

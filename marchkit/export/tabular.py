@@ -17,7 +17,10 @@ JSONL: one JSON object per cycle, with the same keys in the same order::
 is the lowest bit of the number), zero-padded to the width of the field: ``ceil(A/4)`` digits
 for ``A`` address bits, ``ceil(B/4)`` for ``B``-bit words.  An idle cycle has no element and
 no op (empty in CSV, ``null`` in JSONL).  The meaning of each field is in
-:mod:`marchkit.export.stream`.
+:mod:`marchkit.export.stream`.  With pipelined reads (``read_latency`` L > 0) ``expect`` and
+``mask`` are on the compare cycle, L cycles after the read's last cycle, beside whatever
+operation is issued then (0 on the read's own cycles); the last rows may be idle drain cycles
+that only compare.
 """
 
 from __future__ import annotations
@@ -48,6 +51,16 @@ class Csv:
     def idle_row(self, dc, run, za, z) -> Row:
         return Row().field("cycle", dc).lit(f",{run},,,idle,0,0,{za},{z},{z},{z}\n")
 
+    # pipelined reads: the "expect,mask" part of the data text, and where it starts in it
+    def cmp_text(self, expect, mask) -> str:
+        return f"{expect},{mask}"
+
+    def cmp_offset(self, hd: int) -> int:
+        return hd + 1
+
+    def idle_text(self, cycle, run, za, z, cmp) -> str:
+        return f"{cycle},{run},,,idle,0,0,{za},{z},{cmp}\n"
+
 
 class Jsonl(Csv):
     name = "jsonl"
@@ -72,6 +85,16 @@ class Jsonl(Csv):
             f',"run":{run},"element":null,"op":null,"action":"idle","we":0,"re":0,'
             f'"address":"{za}","wdata":"{z}","expect":"{z}","mask":"{z}"}}\n'))
 
+    def cmp_text(self, expect, mask) -> str:
+        return f'"expect":"{expect}","mask":"{mask}"'
+
+    def cmp_offset(self, hd: int) -> int:
+        return len('"wdata":"",') + hd
+
+    def idle_text(self, cycle, run, za, z, cmp) -> str:
+        return (f'{{"cycle":{cycle},"run":{run},"element":null,"op":null,"action":"idle","we":0,"re":0,'
+                f'"address":"{za}","wdata":"{z}",{cmp}}}\n')
+
 
 def idle_chunks(start: int, count: int, chunk: int | None = None):
     """(first cycle, cycles) pieces of an idle run, none crossing a power of ten."""
@@ -94,9 +117,26 @@ def write_rows(plan, f, dialect) -> int:
     data_tabs: dict[int, np.ndarray] = {}
     seg_cache: dict = {}
     lines = 0
+    pipe = None
+    if plan.latency:            # pipelined reads: expect/mask come from the Pipeline
+        from .stream import Pipeline
+
+        pipe = Pipeline(plan)
+        ctexts = [dialect.cmp_text(z, z)] + [dialect.cmp_text(w.decode(), ones)
+                                             for w in hex_text(plan.cmp_words, plan.bits)]
+        ctab = table(ctexts)
+        coff = dialect.cmp_offset(hd)
     for b in plan.blocks():
         if b.is_idle:
-            for c0, n in idle_chunks(b.start, b.count):
+            start, count = b.start, b.count
+            if pipe is not None:
+                head = pipe.idle(count)
+                if head.any():
+                    f.write("".join(dialect.idle_text(start + i, b.run, za, z, ctexts[int(c)])
+                                    for i, c in enumerate(head)).encode())
+                    lines += len(head)
+                    start, count = start + len(head), count - len(head)
+            for c0, n in idle_chunks(start, count):
                 row = dialect.idle_row(decimal_digits(c0), b.run, za, z)
                 buf = row.buffer(n)
                 row.put_counter(buf, "cycle", c0)
@@ -107,7 +147,9 @@ def write_rows(plan, f, dialect) -> int:
         if seg.run not in data_tabs:
             words = hex_text(plan.words[seg.run], plan.bits)
             data_tabs[seg.run] = table(
-                dialect.data_text(w.decode(), z, ones, k).encode() for w in words for k in range(3)
+                (dialect.data_text(w.decode(), z, ones, k) if pipe is None or k == 0
+                 else dialect.data_text(z, z, ones, 0)).encode()        # pipelined: nothing on the read
+                for w in words for k in range(3)
             )
         dtab = data_tabs[seg.run]
         dc = decimal_digits(b.start)
@@ -132,6 +174,8 @@ def write_rows(plan, f, dialect) -> int:
         put_slotwise(row, buf, "slot", b, stab)
         put_address(row, buf, "address", b, "hex")
         put_data(row, buf, "data", b, dtab)
+        if pipe is not None:
+            put_rows(buf, row.off["data"] + coff, ctab, pipe.op(b))
         if skeep is None:
             f.write(buf)
         else:

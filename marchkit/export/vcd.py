@@ -17,7 +17,21 @@ variable      width   meaning
 ``op``        *       op index in the element (``x`` on idle cycles)
 ============  ======  ==============================================================
 
-(*: as many bits as the largest value needs.)  Cycle ``c`` starts at time ``c·T`` (T the
+(*: as many bits as the largest value needs.)
+
+With a pin map (the memory file's ``[pins]`` or ``export --pins``, :mod:`.pins`) the signals
+take the pin names — ``clk`` → ``clock``, ``address`` → ``address``, ``we``/``re`` →
+``write_enable``/``read_enable``, ``wdata`` → ``data_in``, ``expect`` → ``data_out`` (the
+value the data-out pins must show), ``mask`` → ``data_out`` + ``_mask`` — and an optional chip
+enable (1 bit, active on operation cycles) and byte enables (one bit per ``byte_bits`` data
+bits, active on writes) are added.  Enables are written as the pin's electrical value: an
+active-low pin is ``0`` when active.  ``run``, ``element`` and ``op`` keep their names.
+
+With pipelined reads (``read_latency`` L > 0) ``expect`` and ``mask`` are on the compare
+cycle, L cycles after the read's last cycle (see :mod:`.stream`); the file may end with idle
+drain cycles that only compare.
+
+Cycle ``c`` starts at time ``c·T`` (T the
 clock period) and the inputs change there; ``clk`` rises at ``c·T + T/2``.  The time unit is
 the coarsest of 1/10/100 s … fs that makes half a period a whole number; if none does, it is
 1 fs and times are rounded down.  The last timestamp, ``cycles·T``, is the end of the test.
@@ -72,10 +86,39 @@ class _Signals:
         for words in plan.words:
             self.vid.append(np.array([values.setdefault(w, len(values)) for w in words], np.int64))
         self.values = sorted(values, key=values.get)
+        # pipelined reads: compare code (stream.Pipeline) -> value id
+        self.cvid = np.array([0] + [values[w] for w in plan.cmp_words], np.int64)
+        pm = getattr(plan, "pins", None)
+        self.pins = pm if pm is not None and not pm.is_default else None
+        self.NBE = self.pins.byte_count(self.B) if self.pins else 0
+        self.names = NAMES + (("ce",) if self.pins and self.pins.chip_enable else ()) + (("ben",) if self.NBE else ())
 
     def widths(self):
-        return (self.A, 1, 1, self.B, self.B, self.B, self.RW, self.EW, self.OW)
+        return (self.A, 1, 1, self.B, self.B, self.B, self.RW, self.EW, self.OW) + \
+            ((1,) if "ce" in self.names else ()) + ((self.NBE,) if self.NBE else ())
 
+    def var_names(self) -> dict:
+        """The name each variable has in the file: the pin map's, or the plain default."""
+        pm = self.pins
+        if pm is None:
+            return {n: n for n in ("clk",) + self.names}
+        names = {"clk": pm.clock, "address": pm.address, "we": pm.write_enable, "re": pm.read_enable,
+                 "wdata": pm.data_in, "expect": pm.data_out, "mask": pm.data_out + "_mask", "run": "run",
+                 "element": "element", "op": "op", "ce": pm.chip_enable, "ben": pm.byte_enables}
+        shown = [names[n] for n in ("clk",) + self.names]
+        dup = sorted({n for n in shown if shown.count(n) > 1})
+        if dup:
+            raise OutputError(f"pins: the name {dup[0]!r} is taken in VCD (the variables run, element, op and "
+                              f"{pm.data_out}_mask, the compare mask, are added); choose another")
+        return names
+
+    def low(self, name) -> bool:
+        """True for an enable whose pin is active low (written inverted)."""
+        pm = self.pins
+        if pm is None:
+            return False
+        return {"we": pm.write_enable_active, "re": pm.read_enable_active, "ce": pm.chip_enable_active,
+                "ben": pm.byte_enables_active}.get(name, "high") == "low"
 
 
 NAMES = ("address", "we", "re", "wdata", "expect", "mask", "run", "element", "op")
@@ -105,16 +148,24 @@ class _Writer:
         self.DT = len(str(int(self.ts(np.array([kmax]))[0])))
         B = sig.B
         bins = lambda vals, width: table(bin_text(vals, width))       # noqa: E731
+        en = lambda name, w=1: table([b"1" * w, b"0" * w] if sig.low(name) else [b"0" * w, b"1" * w])  # noqa: E731
+        self.names = sig.names
         self.tab = {
             "address": None,
-            "we": table([b"0", b"1"]), "re": table([b"0", b"1"]),
+            "we": en("we"), "re": en("re"),
             "wdata": bins(sig.values, B), "expect": bins(sig.values, B),
             "mask": bins([0, plan.all_ones], B),
             "run": bins(range(plan.runs), sig.RW),
             "element": table(bin_text(range(plan.elements), sig.EW) + [b"x" * sig.EW]),
             "op": table(bin_text(range(plan.max_ops), sig.OW) + [b"x" * sig.OW]),
+            "ce": en("ce"), "ben": en("ben", max(sig.NBE, 1)),
         }
-        self.width = dict(zip(NAMES, sig.widths()))
+        self.width = dict(zip(self.names, sig.widths()))
+        self.pipe = None
+        if plan.latency:            # pipelined reads: expect/mask from the Pipeline, cycle by cycle
+            from .stream import Pipeline
+
+            self.pipe = Pipeline(plan)
         self.prev = None
         self._general_row()
         self._visit_rows: dict = {}
@@ -143,20 +194,30 @@ class _Writer:
         re = np.take(seg.slot_re, slot)
         v = np.take(self.sig.vid[seg.run], b.dsel)
         n = b.count
-        return (np.asarray(b.address, np.int64), we, re, v * we, v * re, np.take(seg.slot_compare, slot),
-                np.full(n, seg.run, np.int64), np.full(n, seg.element, np.int64), np.take(seg.slot_op, slot))
+        expect, mask = v * re, np.take(seg.slot_compare, slot)
+        if self.pipe is not None:
+            cmp = self.pipe.op(b)
+            expect, mask = np.take(self.sig.cvid, cmp), (cmp > 0).astype(np.int64)
+        return (np.asarray(b.address, np.int64), we, re, v * we, expect, mask,
+                np.full(n, seg.run, np.int64), np.full(n, seg.element, np.int64), np.take(seg.slot_op, slot)) + \
+            self._extra(np.ones(n, np.int64), we)
 
-    def idle_codes(self, run, n):
+    def idle_codes(self, run, n, cmp=None):
         z = np.zeros(n, np.int64)
-        return (z, z, z, z, z, z, np.full(n, run, np.int64), np.full(n, self.plan.elements, np.int64),
-                np.full(n, self.plan.max_ops, np.int64))
+        expect, mask = (z, z) if cmp is None else (np.take(self.sig.cvid, cmp), (cmp > 0).astype(np.int64))
+        return (z, z, z, z, expect, mask, np.full(n, run, np.int64), np.full(n, self.plan.elements, np.int64),
+                np.full(n, self.plan.max_ops, np.int64)) + self._extra(z, z)
+
+    def _extra(self, ce, ben):
+        """Codes of the chip enable and byte enables, when the pin map has them."""
+        return ((ce,) if "ce" in self.names else ()) + ((ben,) if "ben" in self.names else ())
 
     # ---- the general way ---------------------------------------------------------------
     def _general_row(self):
         row = Row()
         row.lit("#").field("t0", self.DT).lit(f"\n0{self.ids['clk']}\n")
         ends = [row.size]
-        for name in NAMES:
+        for name in self.names:
             w = self.width[name]
             if w == 1:
                 row.field(name, 1).lit(f"{self.ids[name]}\n")
@@ -176,12 +237,12 @@ class _Writer:
         t0, t1 = self.ts(k), self.ts(k + 1)
         row.put_dec(buf, "t0", t0)
         row.put_dec(buf, "t1", t1)
-        for name, cd in zip(NAMES, codes):
+        for name, cd in zip(self.names, codes):
             if name == "address":
                 row.put_bin(buf, name, cd)
             else:
                 row.put(buf, name, self.tab[name], cd)
-        changed = np.ones((n, len(NAMES) + 2), bool)
+        changed = np.ones((n, len(self.names) + 2), bool)
         for j, cd in enumerate(codes):
             p0 = self.prev[j] if self.prev is not None else cd[0]
             changed[0, j + 1] = cd[0] != p0
@@ -199,6 +260,13 @@ class _Writer:
 
     # ---- idle runs ---------------------------------------------------------------------
     def idle(self, run: int, start: int, count: int) -> None:
+        if self.pipe is not None:
+            head = self.pipe.idle(count)
+            if head.any():                    # the data of reads issued before the idle run
+                self.general(start, self.idle_codes(run, len(head), head))
+                start, count = start + len(head), count - len(head)
+                if not count:
+                    return
         self.general(start, self.idle_codes(run, 1))
         c, end = start + 1, start + count
         while c < end:
@@ -233,13 +301,15 @@ class _Writer:
         clk = self.ids["clk"]
         row = Row()
         fields = []
+        flags = [("we", seg.slot_we), ("re", seg.slot_re), ("mask", seg.slot_compare), ("op", seg.slot_op)]
+        if "ben" in self.names:
+            flags.append(("ben", seg.slot_we))
         for s in range(P):
             p = (s - 1) % P
             row.lit("#").field(f"t0_{s}", D).lit(f"\n0{clk}\n")
             if s == 0:
                 row.lit("b").field("address", self.width["address"]).lit(f" {self.ids['address']}\n")
-            for name, en in (("we", seg.slot_we), ("re", seg.slot_re), ("mask", seg.slot_compare),
-                             ("op", seg.slot_op)):
+            for name, en in flags:
                 if en[s] != en[p]:
                     code = int(en[s])
                     row.lit(self.part(name).format(self.value_text(name, code).decode()))
@@ -262,6 +332,9 @@ class _Writer:
     def element(self, b) -> None:
         seg = b.seg
         P = seg.per_address
+        if self.pipe is not None:             # pipelined reads: the general way throughout
+            self.general(b.start, self.op_codes(b))
+            return
         if b.slot is not None and (b.count % P or int(b.slot[0]) != 0):
             self.general(b.start, self.op_codes(b))       # part of a very long visit
             return
@@ -336,16 +409,20 @@ def write_vcd(plan, f, **_) -> dict:
         comment += "; half a clock period is not a whole number of fs: times are rounded down"
     w = VCDWriter(head, timescale=ts_text, date="", comment=comment, version=f"marchkit {__version__}")
     idle0 = first is None or first.action == "idle"
+    elec = lambda name, v, width=1: ((1 << width) - 1) * (1 - v if sig.low(name) else v)   # noqa: E731
+    we0 = first.we if first else 0
     init = dict(
-        clk=0, address=first.address if first else 0, we=first.we if first else 0,
-        re=first.re if first else 0, wdata=first.wdata if first else 0,
+        clk=0, address=first.address if first else 0, we=elec("we", we0),
+        re=elec("re", first.re if first else 0), wdata=first.wdata if first else 0,
         expect=first.expect if first else 0, mask=first.mask if first else 0,
         run=first.run if first else 0,
         element="x" if idle0 else first.element, op="x" if idle0 else first.op,
+        ce=elec("ce", 0 if idle0 else 1), ben=elec("ben", we0, max(sig.NBE, 1)),
     )
     ids = {}
-    for name, width in zip(("clk",) + NAMES, (1,) + sig.widths()):
-        var = w.register_var("pattern", name, "wire", size=width, init=init[name])
+    shown = sig.var_names()
+    for name, width in zip(("clk",) + sig.names, (1,) + sig.widths()):
+        var = w.register_var("pattern", shown[name], "wire", size=width, init=init[name])
         ids[name] = var.ident
     out = _Writer(plan, f, ids, sig, half)      # checks the time range before anything is written
     w.flush()

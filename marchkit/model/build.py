@@ -35,6 +35,7 @@ MEMORY_KEYS: dict[str, Key] = {
     "clock": Key((str,), help='clock with its unit, e.g. "200MHz"'),
     "read_cycles": Key((int,), help="clock cycles per read"),
     "write_cycles": Key((int,), help="clock cycles per write"),
+    "read_latency": Key((int,), help="pipelined reads: cycles from a read to its data, 0 to 64"),
     "scramble_bits": Key((list,), items=int, help="address bit order"),
     "scramble_xor": Key((int, str), help="address XOR mask"),
     "neighbours": Key((int,), help="4 or 8 physical neighbours"),
@@ -119,7 +120,7 @@ def parse_int_list(text: str) -> tuple[int, ...]:
 
 def make_memory(words: int, bits: int = 1, *, mux: int = 1, order: str = "linear",
                 backgrounds=("solid",), clock="100MHz", read_cycles: int = 1,
-                write_cycles: int = 1, scramble_bits=None, scramble_xor=0,
+                write_cycles: int = 1, read_latency: int = 0, scramble_bits=None, scramble_xor=0,
                 neighbours: int = 8, name: str = "", refresh=0, refresh_scheme: str = "distributed",
                 refresh_during_delays=False, page: str = "closed") -> Memory:
     """A validated memory.  ``clock`` may be a frequency text (``200MHz``) or Hz."""
@@ -138,6 +139,7 @@ def make_memory(words: int, bits: int = 1, *, mux: int = 1, order: str = "linear
         scramble_bits=tuple(scramble_bits) if scramble_bits is not None else None,
         scramble_xor=int(scramble_xor), order=order, backgrounds=tuple(backgrounds),
         clock_hz=clock_hz, read_cycles=int(read_cycles), write_cycles=int(write_cycles),
+        read_latency=int(read_latency),
         neighbours=int(neighbours), name=name,
         **_dram_fields(refresh, refresh_scheme, refresh_during_delays, page),
     )
@@ -219,6 +221,7 @@ _MESSAGE_KEYS = (
     ("duration", ("refresh",)),
     ("page", ("page",)),
     ("reads and writes", ("read_cycles", "write_cycles")),
+    ("read latency", ("read_latency",)),
     ("column mux", ("mux",)),
     ("XOR", ("scramble_xor",)),
     ("scrambl", ("scramble_bits",)),

@@ -21,6 +21,7 @@ from ..errors import ModelError
 MAX_WORDS = 1 << 26
 MAX_BITS = 1024
 MAX_OP_CYCLES = 1024     # clock cycles one read or write may take
+MAX_READ_LATENCY = 64    # clock cycles from a read to its data (pipelined memories)
 
 
 def _is_pow2(n: int) -> bool:
@@ -43,6 +44,9 @@ class Memory:
     write_cycles: int = 1
     neighbours: int = 8            # 4: N/S/E/W; 8: and the diagonals
     name: str = ""
+    # pipelined reads: the data of a read is valid this many cycles after the read's last
+    # cycle, while the next operations are issued (model/timing.py: the final drain)
+    read_latency: int = 0
     # ---- DRAM (see model/dram.py); refresh 0 = no refresh, an SRAM ----------------------
     refresh: Fraction = Fraction(0)          # refresh period, seconds
     refresh_scheme: str = "distributed"      # distributed | burst
@@ -106,6 +110,9 @@ class Memory:
         if self.read_cycles > MAX_OP_CYCLES or self.write_cycles > MAX_OP_CYCLES:
             raise ModelError(f"reads and writes take at most {MAX_OP_CYCLES} clock cycles "
                              f"(got read {self.read_cycles}, write {self.write_cycles})")
+        if (not isinstance(self.read_latency, int) or isinstance(self.read_latency, bool)
+                or not 0 <= self.read_latency <= MAX_READ_LATENCY):
+            raise ModelError(f"read latency must be 0 to {MAX_READ_LATENCY} clock cycles (got {self.read_latency})")
         if self.neighbours not in (4, 8):
             raise ModelError("neighbours must be 4 (N/S/E/W) or 8 (with diagonals)")
         # orders and backgrounds check themselves
@@ -175,6 +182,7 @@ class Memory:
             "read_cycles": self.read_cycles,
             "write_cycles": self.write_cycles,
             "neighbours": self.neighbours,
+            **({"read_latency": self.read_latency} if self.read_latency else {}),
             **({"refresh_s": float(self.refresh), "refresh_scheme": self.refresh_scheme,
                 "refresh_during_delays": self.refresh_during_delays, "page": self.page}
                if self.dram else {}),

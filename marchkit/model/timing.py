@@ -107,6 +107,7 @@ class Schedule:
     ops: int
     clock_hz: Fraction
     runs: int
+    drain: int = 0              # idle cycles at the end for the last read's data (read_latency)
 
     @property
     def seconds(self) -> Fraction:
@@ -148,7 +149,41 @@ def schedule(test, mem, runs: int | None = None) -> Schedule:
                 d = seconds_to_cycles(item.seconds, mem.clock_hz)
                 segs.append(Segment(run, ii, None, None, t, 0, (), d))
                 t += d
-    return Schedule(tuple(segs), t, ops, mem.clock_hz, runs)
+    drain = read_drain(segs, mem, t)
+    return Schedule(tuple(segs), t + drain, ops, mem.clock_hz, runs, drain)
+
+
+def read_drain(segs, mem, end: int) -> int:
+    """Cycles the test lasts beyond ``end`` (the end of its last operation or delay) so that
+    the data of its last compared read is back: a pipelined memory (``read_latency`` L > 0)
+    returns a read's data L cycles after the read's last cycle while the next operations are
+    already issued, so only the last compared read can need L extra (idle) cycles — fewer
+    when writes or a delay follow it.  0 for L = 0."""
+    lat = getattr(mem, "read_latency", 0)
+    if not lat:
+        return 0
+    fw = None
+    for si, seg in enumerate(segs):
+        w = next((r for r in seg.runs if r.kind == "w"), None)
+        if w is not None:
+            fw = (si, w.first)
+            break
+    for si in range(len(segs) - 1, -1, -1):
+        reads = [r for r in segs[si].runs if r.kind == "r"]
+        if reads:
+            r = reads[-1]
+            if fw is None or (si, r.first + r.repeat - 1) < fw:
+                return 0                  # the last read is not compared
+            seg = segs[si]
+            last = seg.start + (mem.words - 1) * seg.per_address + r.end - 1   # its last cycle
+            return max(0, last + lat + 1 - end)
+    return 0
+
+
+def compare_cycle(mem, issue: int) -> int:
+    """The cycle a read that begins at ``issue`` is compared in (what a tester's fail log
+    shows): its last cycle, plus the read latency of a pipelined memory."""
+    return issue + mem.read_cycles - 1 + getattr(mem, "read_latency", 0)
 
 
 def first_write(sched) -> tuple[int, int] | None:

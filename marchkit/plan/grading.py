@@ -68,7 +68,7 @@ def run_job(job: Job) -> dict:
     mem = make_memory(
         words=d["words"], bits=d["bits"], mux=d["mux"], order=d["order"],
         backgrounds=tuple(d["backgrounds"]), clock=Fraction(d["clock_hz"]),
-        read_cycles=d["read_cycles"], write_cycles=d["write_cycles"],
+        read_cycles=d["read_cycles"], write_cycles=d["write_cycles"], read_latency=d.get("read_latency", 0),
         scramble_bits=d["scramble_bits"], scramble_xor=d["scramble_xor"], neighbours=d["neighbours"],
     )
     res = grade(test, mem, job.faults, job.pairs, tuple(Fraction(t) for t in job.retention) or None)

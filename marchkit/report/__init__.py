@@ -21,18 +21,18 @@ def write_comparison_plot(cmp, path, force: bool = False):
     return f(cmp, path, force=force)
 
 
-def html_report(result) -> str:
+def html_report(result, score=None, weights=None) -> str:
     from .html import html_report as f
 
-    return f(result)
+    return f(result, score=score, weights=weights)
 
 
-def write_html_report(result, path, force: bool = False) -> None:
+def write_html_report(result, path, force: bool = False, score=None, weights=None) -> None:
     """A self-contained HTML page of a grade result, written atomically (see
     :mod:`marchkit.report.html`)."""
     from .html import write_html_report as f
 
-    return f(result, path, force=force)
+    return f(result, path, force=force, score=score, weights=weights)
 
 
 def plan_figure(data):

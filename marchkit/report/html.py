@@ -20,6 +20,7 @@ body { margin: 0; color: var(--ink); background: #fff;
 main { max-width: 1080px; margin: 0 auto; padding: 28px 24px 48px; }
 .kicker { margin: 0; color: var(--muted); font-size: 13px; letter-spacing: .06em; text-transform: uppercase; }
 h1 { margin: 2px 0 6px; font-size: 28px; }
+h2::first-letter { text-transform: uppercase; }
 h2 { margin: 36px 0 10px; font-size: 19px; border-bottom: 2px solid var(--ink); padding-bottom: 4px; }
 code, .mono { font-family: ui-monospace, "SFMono-Regular", Menlo, Consolas, "DejaVu Sans Mono", monospace; font-size: 13.5px; }
 .notation { margin: 0 0 14px; padding: 8px 10px; background: var(--soft); border-left: 4px solid var(--accent); overflow-x: auto; white-space: nowrap; }
@@ -60,6 +61,14 @@ def _e(x) -> str:
 def _pct(cov: float, detected: int | None = None, instances: int | None = None) -> str:
     """Coverage in % with two decimals; a partial coverage never shows as 100 % or 0 %."""
     return '<span class="pct">' + percent_text(cov, 2, detected, instances).replace(".00", "") + "&nbsp;%</span>"
+
+
+def _th(label: str) -> str:
+    """A column head (numbers right-aligned)."""
+    from .labels import DETECTED, INSTANCES, WEIGHT
+
+    num = ' class="num"' if label in (INSTANCES, DETECTED, WEIGHT) else ""
+    return f"<th{num}>{_e(label)}</th>"
 
 
 def _meter(cov: float) -> str:
@@ -146,8 +155,11 @@ def report_figure(result):
     return fig
 
 
-def html_report(result) -> str:
-    """The page as text."""
+def html_report(result, score=None, weights=None) -> str:
+    """The page as text.  ``score`` (a Fraction, with the ``weights`` it was taken with) is
+    shown as in ``marchkit grade``; without it the score is taken with equal weights.  Labels,
+    titles and summary texts come from :mod:`.labels`, as on the terminal."""
+    from . import labels as L
     from .. import __version__
     from ..notation import format_notation
 
@@ -165,18 +177,21 @@ def html_report(result) -> str:
         png = figure_bytes(fig, "png", dpi=110)
     img = base64.b64encode(png).decode("ascii")
 
-    clock = format_frequency(mem.clock_hz)
-    facts = [
-        ("length", f"{t.length_text} ({t.ops_per_cell} operations per address)"),
-        ("memory", f"{memory_label(mem)}; {mem.rows} rows × {mem.columns} columns; "
-                   f"order {mem.order}; backgrounds {', '.join(mem.backgrounds)}"),
-        ("faults", result.faults_spec),
-        ("pairs", result.pairs_spec),
-        ("operations", f"{result.ops:,}"),
-        ("cycles", f"{result.cycles:,} (read {mem.read_cycles}, write {mem.write_cycles} cycle(s); delays included)"),
-        ("test time", f"{format_time(result.seconds)} at {clock}"),
-        ("engine", getattr(result, "engine", "") or "—"),
-    ]
+    if score is None:
+        from ..grade.score import class_score
+
+        score = class_score(classes, weights)
+    facts = dict(zip(L.FACTS, [
+        f"{t.length_text} ({t.ops_per_cell} operations per address)",
+        L.memory_text(mem),
+        result.faults_spec,
+        result.pairs_spec,
+        getattr(result, "engine", "") or "—",
+        L.score_text(score, weights, classes),
+        L.total_text(total),
+        L.cost_text(t, mem, result.ops, result.cycles, result.seconds),
+    ]))
+    facts = list(facts.items())
     empty = list(getattr(result, "empty_classes", []) or [])
     if empty:
         facts.append(("no instances", ", ".join(empty) + " (nothing to grade on this memory and pair scope)"))
@@ -194,19 +209,20 @@ def html_report(result) -> str:
     if getattr(t, "source", ""):
         a(f'<p class="note">Source: {_e(t.source)}</p>')
     a('<div class="summary">')
-    a(f'<div class="score">total coverage<b>{_pct(total.coverage, total.detected, total.instances)}</b>'
-      f"{total.detected:,} of {total.instances:,} fault instances detected</div>")
+    from ..grade.score import _pct as _score_pct
+
+    a(f'<div class="score">score<b>{_score_pct(score)}&nbsp;%</b>'
+      f"{_e(L.total_text(total).replace(' (', ' total (', 1))}</div>")
     a('<dl class="facts">' + "".join(f"<dt>{_e(k)}</dt><dd>{_e(v)}</dd>" for k, v in facts) + "</dl>")
     a("</div>")
 
     # ---- classes
-    a("<h2>Coverage per class</h2>")
+    a(f"<h2>{_e(L.SECTIONS['classes'])}</h2>")
     a(f'<figure><img alt="Coverage per fault class, and the march element by which each class is complete" '
       f'src="data:image/png;base64,{img}"><figcaption>Left: share of each class detected. Right: the element by '
       f"which every instance of the class that the test detects has been detected (filled circle: the whole "
       f"class; open diamond: part of it).</figcaption></figure>")
-    a('<table class="classes"><thead><tr><th>class</th><th class="num">instances</th><th class="num">detected</th>'
-      '<th>coverage</th><th>first detected in</th><th>complete by element</th><th>what is missing</th></tr></thead><tbody>')
+    a('<table class="classes"><thead><tr>' + "".join(_th(c) for c in L.GRADE_CLASS_COLUMNS) + "</tr></thead><tbody>")
     elements = list(t.elements)
     for c in classes:
         short = c.detected < c.instances
@@ -215,8 +231,9 @@ def html_report(result) -> str:
                 return '<span class="tag">not detected</span>'
             return f"M{e} <code>{_e(_element_text(elements[e]))}</code>" if e < len(elements) else f"M{e}"
 
-        first = at(getattr(c, "first_by", None) if c.complete_by is not None else None)
-        where = at(c.complete_by)
+        first = at(getattr(c, "first_by", None)) if c.detected else "—"
+        # as on the terminal: "all found by" only for a class detected completely
+        where = at(c.complete_by) if c.instances and c.detected == c.instances else "—"
         a(f'<tr class="{"short" if short else "full"}"><td><b>{_e(c.cls)}</b></td>'
           f'<td class="num">{c.instances:,}</td><td class="num">{c.detected:,}</td>'
           f"<td>{_meter(c.coverage)}{_pct(c.coverage, c.detected, c.instances)}</td><td>{first}</td><td>{where}</td>"
@@ -224,13 +241,12 @@ def html_report(result) -> str:
     a("</tbody></table>")
 
     # ---- elements
-    a("<h2>Elements of the test</h2>")
+    a(f"<h2>{_e(L.SECTIONS['elements'])}</h2>")
     done: dict[int, list[str]] = {}
     for c in classes:
         if c.complete_by is not None:
             done.setdefault(c.complete_by, []).append(c.cls)
-    a('<table><thead><tr><th>element</th><th>notation</th><th class="num">operations per address</th>'
-      "<th>classes complete here</th></tr></thead><tbody>")
+    a("<table><thead><tr>" + "".join(_th(c) for c in L.ELEMENT_COLUMNS) + "</tr></thead><tbody>")
     ei = 0
     for item in t.items:
         if hasattr(item, "ops"):
@@ -243,7 +259,7 @@ def html_report(result) -> str:
     a("</tbody></table>")
 
     # ---- missed
-    a("<h2>What the test misses</h2>")
+    a(f"<h2>{_e(L.SECTIONS['missed'])}</h2>")
     missed_cls = [c for c in classes if c.detected < c.instances]
     if not missed_cls:
         a("<p>Every fault instance graded is detected.</p>")
@@ -264,12 +280,12 @@ def html_report(result) -> str:
 
     # ---- primitives
     if prims:
-        a("<h2>Fault primitives and kinds</h2>")
+        a(f"<h2>{_e(L.SECTIONS['kinds'])}</h2>")
         n_full = sum(p.detected == p.instances for p in prims)
         a(f'<p class="note">{n_full} of {len(prims)} fault kinds (primitives, models, linked and neighbourhood faults) fully detected. '
           "Notation &lt;S/F/R&gt; of van de Goor &amp; Al-Ars (VTS 2000).</p>")
-        a('<table class="primitives"><thead><tr><th>primitive</th><th>class</th><th class="num">instances</th>'
-          '<th class="num">detected</th><th>coverage</th><th>why not all</th></tr></thead><tbody>')
+        a('<table class="primitives"><thead><tr>' + "".join(_th(c) for c in L.GRADE_KIND_COLUMNS)
+          + "</tr></thead><tbody>")
         for p in prims:
             short = p.detected < p.instances
             cov = p.detected / p.instances if p.instances else 1.0
@@ -284,10 +300,10 @@ def html_report(result) -> str:
     return "\n".join(out) + "\n"
 
 
-def write_html_report(result, path, force: bool = False) -> None:
+def write_html_report(result, path, force: bool = False, score=None, weights=None) -> None:
     """Write :func:`html_report` to ``path`` under a temporary name, then rename it into
     place; an existing file is refused unless ``force``."""
     from ..files import target_kind
 
     target_kind(path, force)
-    write_file(path, html_report(result), force=force)
+    write_file(path, html_report(result, score=score, weights=weights), force=force)
