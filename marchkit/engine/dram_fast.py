@@ -115,10 +115,14 @@ class DramPrep:
         return any_up[self.any_elems.index(seg.element)]
 
     def visit_start(self, seg, up):
-        """(first cycle of each word's visit (n,), words in visiting order (n,))."""
-        pos = self.rank if up else self.n - 1 - self.rank
-        seq = self.order if up else self.order[::-1]
-        return seg.start + pos * seg.per_address, seq
+        """(first cycle of each word's visit (n,), words in visiting order (n,)), cached per
+        (segment, order): every kind and scenario asks for the same arrays."""
+        key = ("visit", seg.start, up)
+        if key not in self.cache:
+            pos = self.rank if up else self.n - 1 - self.rank
+            seq = self.order if up else self.order[::-1]
+            self.cache[key] = (seg.start + pos * seg.per_address, seq)
+        return self.cache[key]
 
 
 def _last_valid(values, group_start_idx):

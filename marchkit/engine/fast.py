@@ -313,8 +313,26 @@ class Engine:
         return out
 
     def detection(self, si, k, word):
-        """The :class:`Detection` of op ``k`` of segment ``si`` at ``word`` (⇕ run as ⇑)."""
+        """The :class:`Detection` of op ``k`` of segment ``si`` at ``word`` (⇕ run as ⇑).
+
+        When the families graded an equivalent shorter test, op ``k`` of it is mapped back to
+        the full test: a first detection inside a shortened run lies in its first T + P
+        copies (later copies repeat earlier ones, see :func:`_short_count`), which are the
+        same copies of the full run; ops after a shortened run move by the copies removed."""
+        from ..model import op_cycle
+
         prep = self.prep
         seg = prep.sched.segments[si]
-        cycle = int(prep.cycle_of(si, k, np.array([word]))[0])
-        return Detection(seg.run, seg.element, k, int(word), cycle)
+        if prep.sched is self.full_sched:
+            cycle = int(prep.cycle_of(si, k, np.array([word]))[0])
+            return Detection(seg.run, seg.element, k, int(word), cycle)
+        full = self.full_sched.segments[si]
+        fk = k
+        for r, fr in zip(seg.runs, full.runs):
+            if r.first <= k < r.first + r.repeat:
+                j = k - r.first
+                fk = fr.first + (j if j < REPEAT_TRANSIENT + REPEAT_PERIOD else j + fr.repeat - r.repeat)
+                break
+        r = int(prep.rank[word])
+        pos = prep.n - 1 - r if seg.order == "down" else r
+        return Detection(seg.run, seg.element, fk, int(word), int(op_cycle(full, fk, pos)))
