@@ -575,3 +575,31 @@ def test_stil_hammer_item_with_pipelined_reads_shifts_every_strobe(tmp_path, lat
     strobesL = [(i, c["DOUT"]) for i, c in enumerate(flat[latency]) if set(c["DOUT"]) != {"X"}]
     assert [(i + latency, d) for i, d in strobes0] == strobesL
     assert len(strobes0) == 32
+
+
+def test_cli_compare_takes_the_thresholds_and_fits_80_columns(cli, monkeypatch):
+    # the double-sided example (70 000 activations per side, open page) flips cells at the
+    # LPDDR4 threshold of Kim et al., ISCA 2020 (4.8 K) and not at the DDR3 one of Kim et al.,
+    # ISCA 2014 (139 K): compare must grade with the thresholds it is given
+    from pathlib import Path
+
+    monkeypatch.setenv("COLUMNS", "80")
+    root = Path(__file__).resolve().parents[1]
+    args = ("compare", str(root / "examples" / "dram.march"), "--memory", str(root / "examples" / "corvid_dram.toml"),
+            "--page", "open", "--faults", "disturb", "--json")
+    import json
+
+    for n, want in (("4.8k", 100.0), ("139k", 0.0)):
+        code, out, err = cli(*args, "--disturb-threshold", n)
+        assert code == 0, err
+        js = json.loads(out)
+        row = next(r for r in js["tests"] if r["name"] == "Corvid double-sided hammer")
+        assert row["classes"]["disturb"] * 100 == want, (n, row)
+        assert js["provenance"]["disturb_thresholds"] == [4800 if n == "4.8k" else 139000]
+    code, out, err = cli(*args[:-1], "--disturb-threshold", "4.8k")
+    assert code == 0, err
+    lines = out.splitlines()
+    assert max(len(x) for x in lines) <= 80
+    head = next(x for x in lines if x.startswith("test") and "cycles" in x)
+    assert head.rstrip().endswith("front")                    # the last column is not cut
+    assert "act/row" in out and "36,700,684,288" in out       # lengths and numbers whole

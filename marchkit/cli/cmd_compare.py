@@ -78,7 +78,7 @@ def run(args) -> int:
     from ..faults import select_faults
     from ..report import check_sort_key, compare_tests
     from .common import (EXIT_REQUIREMENT, atomic_write, check_reference_time, check_sizes, console, memory_from_args, provenance,
-                         retention_from_args, summary_from_args)
+                         retention_from_args, summary_from_args, thresholds_from_args)
 
     if not args.tests and not args.library:
         raise InputError("give the tests to compare (library names, files or notations), or --library")
@@ -96,7 +96,7 @@ def run(args) -> int:
         if path is not None:
             _check_output(path, args.force, plot=is_plot)
 
-    kw = dict(sort=sort, weights=weights, front_on=args.front_on)
+    kw = dict(sort=sort, weights=weights, front_on=args.front_on, thresholds=thresholds_from_args(args))
     show_progress = sys.stderr.isatty() and not args.json
     if show_progress:
         from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
@@ -221,11 +221,23 @@ def show_comparison(cmp, con) -> None:
         body.append((r, cells))
     # numbers are never cut: each number column is at least as wide as its widest cell;
     # only the test names may wrap
-    t.add_column(L.TEST, overflow="fold")
-    for i, col in enumerate(cols):
-        w = max([len(col)] + [len(_plain(c[i])) for _, c in body])
-        t.add_column(col, justify="right", no_wrap=True, min_width=w)
+    # (and a length with hammer activations or delays, between its terms); a name keeps
+    # at least 14 columns, or its whole length when shorter
     front_label = L.narrow(L.FRONT) if narrow else L.FRONT
+    widths = []
+    for i, col in enumerate(cols):
+        cells = [_plain(c[i]) for _, c in body]
+        if col == L.LENGTH:
+            cells = [part for c in cells for part in c.split()]
+        widths.append(max([len(col)] + [len(c) for c in cells]))
+    room = max(4, con.width - sum(widths) - len(front_label) - 3 * (len(cols) + 2) - 2)
+    t.add_column(L.TEST, overflow="fold", max_width=room,
+                 min_width=min(14, room, max([len(L.TEST)] + [len(r.label) for r in rows])))
+    for col, w in zip(cols, widths):
+        if col == L.LENGTH:
+            t.add_column(col, justify="right", min_width=w)
+        else:
+            t.add_column(col, justify="right", no_wrap=True, min_width=w)
     t.add_column(front_label, justify="center", no_wrap=True, min_width=len(front_label))
     for r, cells in body:
         t.add_row(f"[bold]{r.label}[/bold]" if r.pareto else r.label, *cells,

@@ -256,6 +256,9 @@ def provenance(args, mem, retention, engine: str, notation=None) -> dict:
            "faults": args.faults, "pairs": args.pairs,
            "retention": [format_seconds(t) for t in retention],
            "memory": mem.describe(), "memory_file": getattr(args, "memory", None)}
+    thresholds = thresholds_from_args(args)
+    if thresholds:
+        out["disturb_thresholds"] = list(thresholds)
     if notation is not None:
         out["notation"] = notation
     return out

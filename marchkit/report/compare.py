@@ -252,7 +252,7 @@ def compare_tests(tests: Sequence, mem, faults: str = "static", pairs: str = "ne
                   retention=None, engine: str = "fast",
                   progress: Callable[[int, int, str], None] | None = None,
                   labels: Sequence[str] | None = None, sort: str = "given", weights: dict | None = None,
-                  front_on: str = "score") -> Comparison:
+                  front_on: str = "score", thresholds=None) -> Comparison:
     """Grade every test on ``mem`` and compare them.
 
     ``progress(done, n, label)`` reports how far the run is: ``done`` goes from 0 to ``n``
@@ -266,6 +266,8 @@ def compare_tests(tests: Sequence, mem, faults: str = "static", pairs: str = "ne
         raise InputError("nothing to compare: give at least one test")
     labels = list(labels) if labels is not None else unique_labels([t.name for t in tests])
     kw = {} if retention is None else {"retention": tuple(retention)}
+    if thresholds:
+        kw["thresholds"] = tuple(thresholds)          # disturb thresholds (activations)
     results = []
     for i, (t, label) in enumerate(zip(tests, labels)):
         step = None
