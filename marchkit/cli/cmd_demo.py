@@ -7,7 +7,7 @@ def register(sub):
     p = sub.add_parser("demo", help="grade March C- and March SS on a built-in demo memory",
                        description="Grade two published tests on the built-in demo memory (an invented "
                        "1024 × 16 SRAM, column mux 4, 200 MHz) against static, classic and retention faults, then a "
-                       "retention test and a hammer test on an invented embedded DRAM with refresh.")
+                       "retention test and two hammer tests on an invented embedded DRAM with refresh.")
     p.set_defaults(func=run)
 
 
@@ -29,12 +29,17 @@ def run(args) -> int:
     con.print("[bold]and a DRAM[/bold] — the Corvid-3 accelerator's embedded DRAM (invented): 64 K × 16, "
               "512 rows, refresh every 64 ms, suspended during the test's pauses\n")
     dram = make_memory(**DEMO_DRAM)
-    for text, faults in (("{⇕(w0); Del(100ms); ⇑(r0,w1); Del(100ms); ⇓(r1,w0)}", "dram"),
-                         ("{⇑(w0); ⇑(r0^140000); ⇑(r0,w1); ⇓(r1^140000); ⇓(r1)}", "disturb")):
-        from ..notation import parse_notation
+    from ..model import with_changes
+    from ..notation import parse_notation
 
-        res = grade(parse_notation(text), dram, faults, "neighbours", retention=[Fraction(x) for x in DEMO_RETENTION],
-                    thresholds=DEMO_THRESHOLDS)
+    for name, text, faults, page in (
+            ("Corvid retention", "{⇕(w0); Del(100ms); ⇑(r0,w1); Del(100ms); ⇓(r1,w0)}", "dram", None),
+            ("Corvid hammer", "{⇑(w0); ⇑(r0^140000); ⇑(r0,w1); ⇓(r1^140000); ⇓(r1)}", "disturb", None),
+            ("Corvid double-sided hammer, open page",
+             "{⇑(w0); ⇑hammer(-1,+1)^70000; ⇑(r0,w1); ⇓hammer(-1,+1)^70000; ⇓(r1)}", "disturb", "open")):
+        mem_d = with_changes(dram, page=page) if page else dram
+        res = grade(parse_notation(text, name=name), mem_d, faults, "neighbours",
+                    retention=[Fraction(x) for x in DEMO_RETENTION], thresholds=DEMO_THRESHOLDS)
         show_result(res, con)
         con.print()
     con.print("Next: marchkit library · marchkit grade 'March C-' --words 256 --faults all --pairs all · "
