@@ -12,6 +12,8 @@ Prints, each measured in a fresh process (best of N runs of ``marchkit.grade.gra
    x 8192 columns, 64 ms distributed refresh, suspended during delays, closed page, 800 MHz):
    a retention test with two pauses and a hammer test, faults ``dram`` (retention at three
    times and disturb at the two published thresholds) — target ≤ 10 s.
+3. Hammer items on the same macro with an open page: the time for 10, 70 000 and 10^8 rounds
+   and the ratio of the longest to the shortest (closed form in the round count).
 """
 
 from __future__ import annotations
@@ -90,6 +92,17 @@ def main():
                      thresholds=[139000, 4800]))
         print(f"   {name:9s} {test}\n             {r['seconds']:.2f} s   {r['instances']:,} instances   "
               f"{r['detected']:,} detected   {r['cycles']:,} cycles   (target ≤ 10 s)")
+    print("3. hammer items (double-sided, open page) on the same macro: time against the round count")
+    openp = dict(mem, page="open")
+    got = {}
+    for rounds in (10, 70000, 100_000_000):
+        test = f"{{⇑(w0); ⇑hammer(-1,+1)^{rounds}; ⇑(r0,w1); ⇓hammer(-1,+1)^{rounds}; ⇓(r1)}}"
+        got[rounds] = r = run(dict(mem=openp, test=test, faults="dram", retention=["1/20", "1/10", "1/5"],
+                                   thresholds=[139000, 4800]))
+        print(f"   ^{rounds:<11,} {r['seconds']:.2f} s   {r['detected']:,} of {r['instances']:,} detected   "
+              f"{r['cycles']:,} cycles")
+    print(f"   ratio ^100,000,000 / ^10: {got[100_000_000]['seconds'] / got[10]['seconds']:.2f}  "
+          "(closed form: the round count does not enter the cost)")
 
 
 if __name__ == "__main__":
