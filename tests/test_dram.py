@@ -185,11 +185,10 @@ def test_dram_families_agree_with_the_oracle(data):
     note(f"detected {sum(r[0] for r in ref)} of {len(ref)}")
 
 
-@SETTINGS
-@given(st.data())
-def test_long_repeats_equal_the_literal_run_for_other_families(data):
-    """Repeats beyond the equivalent-count bound (32) against the reference running every copy."""
-    test = data.draw(dram_tests(max_elements=4), label="test")
+def _cell_families_agree(data, hammers=False):
+    """Time-independent kinds of a random DRAM workload: the fast engine's verdicts and first
+    detections against the reference running every copy and every activation."""
+    test = data.draw(dram_tests(max_elements=4, hammers=hammers), label="test")
     mem = data.draw(dram_memories(), label="memory")
     sel = select_faults("static,classic,dynamic")
     kinds = data.draw(st.lists(st.sampled_from(sel.kinds), min_size=1, max_size=4, unique_by=lambda k: k.text))
@@ -201,6 +200,14 @@ def test_long_repeats_equal_the_literal_run_for_other_families(data):
     # verdicts and first detections (op and cycle in the full test) alike
     for inst, r, f in zip(insts, ref, fast):
         assert r == f, (inst.kind.text, inst.sites, r, f)
+    return test, mem, sched, kinds, scope, insts, ref
+
+
+@SETTINGS
+@given(st.data())
+def test_long_repeats_equal_the_literal_run_for_other_families(data):
+    """Repeats beyond the equivalent-count bound (32) against the reference running every copy."""
+    test, mem, sched, kinds, scope, insts, ref = _cell_families_agree(data)
     res = Engine(test, mem, sched).grade(type("S", (), {"kinds": tuple(kinds)})(), scope)
     for k, rr in zip(kinds, res):
         mine = [r[0] for i, r in zip(insts, ref) if i.kind == k]
@@ -235,17 +242,7 @@ def test_hammer_items_agree_with_the_oracle(data):
 def test_hammer_items_leave_the_cell_families_alone(data):
     """An activation reads and writes no cell: the time-independent families give the
     reference's verdicts with hammer items in the test."""
-    test = data.draw(dram_tests(max_elements=4, hammers=True), label="test")
-    mem = data.draw(dram_memories(), label="memory")
-    sel = select_faults("static,classic,dynamic")
-    kinds = data.draw(st.lists(st.sampled_from(sel.kinds), min_size=1, max_size=4, unique_by=lambda k: k.text))
-    scope = parse_pairs("neighbours")
-    insts = [i for k in kinds for i in enumerate_instances(k, mem, scope)][:200]
-    sched = schedule(test, mem)
-    ref = reference_verdicts(test, mem, insts, sched, limit=10**10)
-    fast = Engine(test, mem, sched).instance_verdicts(insts)
-    for inst, r, f in zip(insts, ref, fast):
-        assert r == f, (inst.kind.text, inst.sites, r, f)
+    _cell_families_agree(data, hammers=True)
 
 
 # ---------------------------------------------------------------------------------------

@@ -144,6 +144,25 @@ def _groups(keys):
     return np.maximum.accumulate(gidx), start
 
 
+def _ret_apply(plan, st, units, rows, a, b, gstart, is_start, tau):
+    """Restore events of retention units (sorted by (unit, time); ``a``/``b`` first and last
+    restore of each event, ``rows`` the physical row of each event's unit) from the carried
+    state ``st`` (``last`` restore, ``fl`` latest crossing per unit), updating it; the latest
+    crossing (a stretch ≥ τ without restore ending) up to each event (E,) int64."""
+    prev = np.empty_like(b)
+    prev[1:] = b[:-1]
+    prev[is_start] = st["last"][units[is_start]]
+    gap = plan.max_gap(rows, prev, a)
+    cross = np.where(gap >= tau, a, -1)
+    cross = np.where(is_start, np.maximum(cross, st["fl"][units]), cross)
+    fl = _last_valid(cross, gstart)
+    end = np.ones(units.size, bool)
+    end[:-1] = units[1:] != units[:-1]
+    st["last"][units[end]] = b[end]
+    st["fl"][units[end]] = fl[end]
+    return fl
+
+
 def _split_at_slots(plan, vv, base, tl):
     """Windows [base, tl] of victim rows ``vv`` split at the rows' refresh slots in (base, tl]:
     (source window of each piece, index of the piece in its window (0: the first; > 0: it
@@ -281,17 +300,7 @@ class DramEngine:
         Pa = seg.per_address
         a = seg.start + p0[idx] * Pa
         b = seg.start + p1[idx] * Pa + Pa - seg.runs[-1].each
-        prev = np.empty_like(b)
-        prev[1:] = b[:-1]
-        prev[is_start] = st["last"][us[is_start]]
-        gap = self.p.plan.max_gap(unit_row[us], prev, a)
-        cross = np.where(gap >= tau, a, -1)
-        cross = np.where(is_start, np.maximum(cross, st["fl"][us]), cross)
-        fl = _last_valid(cross, gstart)
-        end = np.ones(us.size, bool)
-        end[:-1] = us[1:] != us[:-1]
-        st["last"][us[end]] = b[end]
-        st["fl"][us[end]] = fl[end]
+        fl = _ret_apply(self.p.plan, st, us, unit_row[us], a, b, gstart, is_start, tau)
         flb = np.empty(bu.size, np.int64)
         flb[idx] = fl
         flw = np.empty(self.p.n, np.int64)
@@ -327,19 +336,8 @@ class DramEngine:
             gstart, is_start = _groups(row)
             p.cache[key] = (row, a, b, gstart, is_start)
         row, a, b, gstart, is_start = p.cache[key]
-        if row.size == 0:
-            return
-        prev = np.empty_like(b)
-        prev[1:] = b[:-1]
-        prev[is_start] = st["last"][row[is_start]]
-        gap = p.plan.max_gap(row, prev, a)
-        cross = np.where(gap >= tau, a, -1)
-        cross = np.where(is_start, np.maximum(cross, st["fl"][row]), cross)
-        fl = _last_valid(cross, gstart)
-        end = np.ones(row.size, bool)
-        end[:-1] = row[1:] != row[:-1]
-        st["last"][row[end]] = b[end]
-        st["fl"][row[end]] = fl[end]
+        if row.size:
+            _ret_apply(p.plan, st, row, row, a, b, gstart, is_start, tau)
 
     # ---- hammer items ----------------------------------------------------------------------
     def _hammer_rows(self, seg):

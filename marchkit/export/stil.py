@@ -259,6 +259,39 @@ def write_stil(plan, f, **_) -> dict:
     return {"vectors": vectors, "loops": loops}
 
 
+def _dout_text(plan, x_d):
+    """The DOUT text of a compare code (0: nothing compared, X)."""
+    cw, B = plan.cmp_words, plan.bits
+
+    def dout(code: int) -> str:
+        return format(cw[code - 1], f"0{B}b").replace("0", "L").replace("1", "H") if code else x_d
+    return dout
+
+
+def _copies(parts, heads, issued, repeat, pipe, lat, dout) -> tuple[int, int]:
+    """``repeat`` copies of the cycles ``heads`` (compare codes ``issued``) appended to
+    ``parts``: with pipelined reads the first copies are written out until the compares in
+    flight have landed, the rest is one ``Loop`` whose body is the same for every copy (it
+    compares what the copy L cycles earlier issued, the same operation).  (vectors, loops)."""
+    vectors = loops = 0
+    explicit = 0 if pipe is None else min(repeat, -(-lat // len(heads)))
+    for _ in range(explicit):
+        got = pipe.feed(issued)
+        parts += [f"    V {{ {h} DOUT={dout(int(c))}; }}\n" for h, c in zip(heads, got)]
+        vectors += len(heads)
+    looped = repeat - explicit
+    if looped:
+        got = pipe.feed(issued) if pipe is not None else issued
+        one = [f"V {{ {h} DOUT={dout(int(c))}; }}" for h, c in zip(heads, got)]
+        if looped == 1:
+            parts += [f"    {v}\n" for v in one]
+        else:
+            parts.append(f"    Loop {looped} {{ " + " ".join(one) + " }\n")
+            loops += 1
+        vectors += len(one)
+    return vectors, loops
+
+
 def _write_hammer(plan, seg, f, x_d, zero_d, extra, pipe=None):
     """A hammer item, row by row: ``Loop count { … }`` around one round, each activation a
     read of the first word of the target row (its data not compared).  With pipelined reads
@@ -266,16 +299,14 @@ def _write_hammer(plan, seg, f, x_d, zero_d, extra, pipe=None):
     from ..notation.printer import format_item
 
     mem = plan.mem
-    A, B = plan.address_bits, plan.bits
+    A = plan.address_bits
     pm = _pins(plan)
     clk, we, re_ = pm.clock, pm.write_enable, pm.read_enable
-    cw = plan.cmp_words
     h = seg.hammer
     f.write(f"    Ann {{* hammer {ann_text(format_item(h, ascii=True))}: each activation a read, not "
             f"compared, {seg.row_cycle} cycle(s) *}}\n".encode())
 
-    def dout(code: int) -> str:
-        return format(cw[code - 1], f"0{B}b").replace("0", "L").replace("1", "H") if code else x_d
+    dout = _dout_text(plan, x_d)
 
     R, mux = mem.rows, mem.mux
     lat = plan.latency
@@ -288,23 +319,10 @@ def _write_hammer(plan, seg, f, x_d, zero_d, extra, pipe=None):
             a = tp if plan.physical else int(mem.logical_word(tp))
             heads += [f"{clk}=P; ADDR={format(a, f'0{A}b')}; DIN={zero_d}; {we}=0; {re_}=1;{extra(1, 0)}"] \
                 * seg.row_cycle
-        issued = np.zeros(len(heads), np.int64)
-        parts = []
-        explicit = 0 if pipe is None else min(h.count, -(-lat // len(heads)))
-        for _ in range(explicit):
-            got = pipe.feed(issued)
-            parts += [f"    V {{ {hd} DOUT={dout(int(c))}; }}\n" for hd, c in zip(heads, got)]
-            vectors += len(heads)
-        looped = h.count - explicit
-        if looped:
-            got = pipe.feed(issued) if pipe is not None else issued
-            one = [f"V {{ {hd} DOUT={dout(int(c))}; }}" for hd, c in zip(heads, got)]
-            if looped == 1:
-                parts += [f"    {v}\n" for v in one]
-            else:
-                parts.append(f"    Loop {looped} {{ " + " ".join(one) + " }\n")
-                loops += 1
-            vectors += len(one)
+        parts: list = []
+        v, lo = _copies(parts, heads, np.zeros(len(heads), np.int64), h.count, pipe, lat, dout)
+        vectors += v
+        loops += lo
         f.write("".join(parts).encode())
     return vectors, loops
 
@@ -332,10 +350,9 @@ def _write_looped(plan, seg, f, x_d, zero_d, extra, pipe=None):
     base = plan.cmp_base[seg.run]
     lat = plan.latency
     vectors = loops = 0
-    cw, clk, we, re_ = plan.cmp_words, pm.clock, pm.write_enable, pm.read_enable
+    clk, we, re_ = pm.clock, pm.write_enable, pm.read_enable
 
-    def dout(code: int) -> str:
-        return format(cw[code - 1], f"0{B}b").replace("0", "L").replace("1", "H") if code else x_d
+    dout = _dout_text(plan, x_d)
 
     for p in range(n):
         i = n - 1 - p if seg.down else p
@@ -352,26 +369,8 @@ def _write_looped(plan, seg, f, x_d, zero_d, extra, pipe=None):
             issued = np.zeros(r.each, np.int64)
             if r.kind == "r" and compared:
                 issued[-1] = 1 + base + 2 * cls + r.value
-            if pipe is None:
-                one = [f"V {{ {h} DOUT={dout(int(c))}; }}" for h, c in zip(heads, issued)]
-                explicit, looped = 0, r.repeat
-            else:
-                explicit = min(r.repeat, -(-lat // r.each))
-                for _ in range(explicit):
-                    got = pipe.feed(issued)
-                    parts += [f"    V {{ {h} DOUT={dout(int(c))}; }}\n" for h, c in zip(heads, got)]
-                    vectors += r.each
-                looped = r.repeat - explicit
-                if looped:
-                    got = pipe.feed(issued)      # the same in every later copy: the carry is periodic
-                    one = [f"V {{ {h} DOUT={dout(int(c))}; }}" for h, c in zip(heads, got)]
-            if not looped:
-                continue
-            if looped == 1:
-                parts += [f"    {v}\n" for v in one]
-            else:
-                parts.append(f"    Loop {looped} {{ " + " ".join(one) + " }\n")
-                loops += 1
-            vectors += len(one)
+            v, lo = _copies(parts, heads, issued, r.repeat, pipe, lat, dout)
+            vectors += v
+            loops += lo
         f.write("".join(parts).encode())
     return vectors, loops
