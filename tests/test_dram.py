@@ -600,3 +600,39 @@ def test_cli_compare_takes_the_thresholds_and_fits_80_columns(cli, monkeypatch):
     head = next(x for x in lines if x.startswith("test") and "cycles" in x)
     assert head.rstrip().endswith("front")                    # the last column is not cut
     assert "act/row" in out and "36,700,684,288" in out       # lengths and numbers whole
+
+
+def test_html_report_lists_a_hammer_item_among_the_elements(cli, tmp_path):
+    # read back with the standard library's html.parser (independent of marchkit's writer)
+    from html.parser import HTMLParser
+
+    out = tmp_path / "h.html"
+    code, _, err = cli("grade", "{⇑(w0); ⇑hammer(-1,+1)^700; ⇑(r0)}", "--words", "64", "--mux", "8",
+                       "--refresh", "1ms", "--page", "open", "--faults", "disturb", "--disturb-threshold", "500",
+                       "--report", str(out))
+    assert code == 0, err
+
+    class Rows(HTMLParser):
+        def __init__(self):
+            super().__init__()
+            self.rows, self.cell = [], None
+
+        def handle_starttag(self, tag, attrs):
+            if tag == "tr":
+                self.rows.append([])
+            elif tag == "td":
+                self.cell = ""
+
+        def handle_endtag(self, tag):
+            if tag == "td" and self.cell is not None:
+                self.rows[-1].append(self.cell.strip())
+                self.cell = None
+
+        def handle_data(self, data):
+            if self.cell is not None:
+                self.cell += data
+
+    p = Rows()
+    p.feed(out.read_text(encoding="utf-8"))
+    names = [r[:2] for r in p.rows if r and r[0] in ("M0", "M1", "hammer")]
+    assert names == [["M0", "⇑(w0)"], ["hammer", "⇑hammer(-1,+1)^700"], ["M1", "⇑(r0)"]]

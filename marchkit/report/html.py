@@ -253,6 +253,9 @@ def html_report(result, score=None, weights=None) -> str:
             a(f'<tr><td>M{ei}</td><td><code>{_e(_element_text(item))}</code></td>'
               f'<td class="num">{item.ops_per_cell}</td><td>{_e(", ".join(done.get(ei, [])))}</td></tr>')
             ei += 1
+        elif hasattr(item, "offsets"):      # a hammer item: row activations, no operation
+            a(f'<tr><td>hammer</td><td><code>{_e(_element_text(item))}</code></td>'
+              f'<td class="num">0 ({item.activations_per_row:,} activations per row)</td><td></td></tr>')
         else:
             a(f'<tr><td>pause</td><td><code>{_e(_element_text(item))}</code></td>'
               f'<td class="num">0</td><td></td></tr>')
