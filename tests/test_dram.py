@@ -636,3 +636,17 @@ def test_html_report_lists_a_hammer_item_among_the_elements(cli, tmp_path):
     p.feed(out.read_text(encoding="utf-8"))
     names = [r[:2] for r in p.rows if r and r[0] in ("M0", "M1", "hammer")]
     assert names == [["M0", "⇑(w0)"], ["hammer", "⇑hammer(-1,+1)^700"], ["M1", "⇑(r0)"]]
+
+
+def test_retention_miss_reason_names_the_refresh(cli, monkeypatch):
+    # common practice, no source: a DRAM retention test must suspend refresh during its pause;
+    # the reason a DRAM user reads says so, the SRAM one speaks of a delay element
+    monkeypatch.setenv("COLUMNS", "200")
+    code, out, err = cli("grade", "{⇕(w0); ⇑(r0,w1); ⇓(r1)}", "--words", "64", "--mux", "8", "--refresh", "1ms",
+                         "--faults", "retention", "--retention", "50ms")
+    assert code == 0, err
+    assert "a pause of at least τ with refresh suspended" in out
+    code, out, err = cli("grade", "{⇕(w0); ⇑(r0,w1); ⇓(r1)}", "--words", "64", "--faults", "retention",
+                         "--retention", "50ms")
+    assert code == 0, err
+    assert "a pause longer than τ (a delay element)" in out and "refresh" not in out.split("why")[1]

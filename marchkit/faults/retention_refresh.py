@@ -12,7 +12,8 @@ from .family import Family
 class RetentionRefreshFamily(Family):
     name = "retention"
     classes = ()            # the class DRF is owned by the SRAM family; these kinds share it
-    needs = {"DRF": "needs, with refresh suspended, a read after a pause of at least τ for each value"}
+    needs = {"DRF": "needs, for each value, a read after at least τ with neither an access to the cell's row "
+                    "nor a refresh of it (on a DRAM: a pause of at least τ with refresh suspended)"}
 
     def kinds(self, retention):
         return retention_kinds(retention)

@@ -187,11 +187,13 @@ def grade(test, mem, faults="static", pairs="neighbours", retention=None, engine
         missed = set().union(*(r.missed_structures for r in rs if r.detected < r.instances)) if d < n else set()
         firsts = [r.first_by for r in rs if r.first_by is not None]
         classes.append(ClassRow(cls, n, d, _cov(d, n), max(complete) if complete else None,
-                                reason_for(cls, missed, partial=d > 0, word_backgrounds=wbg) if d < n else "",
+                                reason_for(cls, missed, partial=d > 0, word_backgrounds=wbg, kind=rs[0].kind)
+                                if d < n else "",
                                 min(firsts) if firsts else None))
     prims = [
         PrimitiveRow(r.kind.text, r.kind.cls, r.instances, r.detected,
-                     reason_for(r.kind.cls, r.missed_structures, partial=r.detected > 0, word_backgrounds=wbg)
+                     reason_for(r.kind.cls, r.missed_structures, partial=r.detected > 0, word_backgrounds=wbg,
+                                kind=r.kind)
                      if r.detected < r.instances else "")
         for r in kinds if r.instances
     ]

@@ -20,13 +20,18 @@ SAME_WORD_TRANSITION = ("missed inside a word: an aggressor bit must flip while 
 TRANSITION_CLASSES = ("CFid", "CFin")
 
 
-def reason_for(cls: str, missed: set, partial: bool = True, word_backgrounds: bool = False) -> str:
+def reason_for(cls: str, missed: set, partial: bool = True, word_backgrounds: bool = False,
+               kind=None) -> str:
     """Why ``cls`` is (partly) missed; ``missed`` names where, shown only when ``partial``.
-    ``word_backgrounds``: the memory already runs the intra-word backgrounds."""
-    from ..faults import class_family
+    ``word_backgrounds``: the memory already runs the intra-word backgrounds.  ``kind``: a kind
+    of the class as graded — its family's words come first (the DRAM retention kinds share
+    the class DRF with the SRAM ones but need other things)."""
+    from ..faults import class_family, family_of
 
     fam = class_family(cls)
-    base = (fam.needs.get(cls) if fam is not None else None) or "not sensitised and observed by this test"
+    own = family_of(kind) if kind is not None else None
+    base = ((own.needs.get(cls) if own is not None else None)
+            or (fam.needs.get(cls) if fam is not None else None) or "not sensitised and observed by this test")
     where = []
     if partial:
         for m in sorted(missed):
