@@ -638,15 +638,12 @@ def test_html_report_lists_a_hammer_item_among_the_elements(cli, tmp_path):
     assert names == [["M0", "⇑(w0)"], ["hammer", "⇑hammer(-1,+1)^700"], ["M1", "⇑(r0)"]]
 
 
-def test_retention_miss_reason_names_the_refresh(cli, monkeypatch):
+def test_retention_miss_reason_names_the_refresh():
     # common practice, no source: a DRAM retention test must suspend refresh during its pause;
     # the reason a DRAM user reads says so, the SRAM one speaks of a delay element
-    monkeypatch.setenv("COLUMNS", "200")
-    code, out, err = cli("grade", "{⇕(w0); ⇑(r0,w1); ⇓(r1)}", "--words", "64", "--mux", "8", "--refresh", "1ms",
-                         "--faults", "retention", "--retention", "50ms")
-    assert code == 0, err
-    assert "a pause of at least τ with refresh suspended" in out
-    code, out, err = cli("grade", "{⇕(w0); ⇑(r0,w1); ⇓(r1)}", "--words", "64", "--faults", "retention",
-                         "--retention", "50ms")
-    assert code == 0, err
-    assert "a pause longer than τ (a delay element)" in out and "refresh" not in out.split("why")[1]
+    t = parse_notation("{⇕(w0); ⇑(r0,w1); ⇓(r1)}")
+    dram = make_memory(64, 1, mux=8, refresh="1ms")
+    (row,) = grade(t, dram, faults="retention", retention=[Fraction(1, 20)]).classes
+    assert "a pause of at least τ with refresh suspended" in row.reason
+    (row,) = grade(t, make_memory(64, 1), faults="retention", retention=[Fraction(1, 20)]).classes
+    assert "a pause longer than τ (a delay element)" in row.reason and "refresh" not in row.reason
