@@ -16,7 +16,7 @@ from fractions import Fraction
 
 import numpy as np
 import pytest
-from hypothesis import HealthCheck, given, note, settings
+from hypothesis import HealthCheck, assume, given, note, settings
 from hypothesis import strategies as st
 
 from marchkit.engine.fast import Engine
@@ -33,7 +33,8 @@ from marchkit.notation.printer import format_notation
 
 SETTINGS = settings(max_examples=60, deadline=None, print_blob=True,
                     suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large])
-FEWER = settings(SETTINGS, max_examples=30)     # the hammer-item runs (more were run by hand: 300)
+FEWER = settings(SETTINGS, max_examples=30,
+                 suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large, HealthCheck.filter_too_much])     # the hammer-item runs (more were run by hand: 300)
 
 
 # ---------------------------------------------------------------------------------------
@@ -233,7 +234,12 @@ def test_hammer_items_agree_with_the_oracle(data):
         st.lists(st.sampled_from([c for c in marks if c > m * rc]), min_size=1, max_size=2, unique=True))]
     ns = data.draw(st.lists(st.sampled_from([n for n in (1, 2, 3, 4, 5, 39, 40, 41, 70, 256, 3000) if n >= m]),
                             min_size=1, max_size=2, unique=True))
-    ref = _agree(test, mem, retention_kinds(taus) + disturb_kinds(ns))
+    try:
+        ref = _agree(test, mem, retention_kinds(taus) + disturb_kinds(ns))
+    except FaultSpecError as e:
+        # the closed form refuses an open-page DRAM hammer that activates the open row again
+        assert "not graded in closed form" in str(e) and mem.page == "open" and mem.refresh
+        assume(False)
     note(f"detected {sum(r[0] for r in ref)} of {len(ref)}")
 
 
@@ -310,8 +316,13 @@ def test_open_page_single_row_repeats_do_not_hammer():
     mem = make_memory(1024, 1, mux=32, clock="1GHz", refresh="64ms", page="open")
     r = grade(parse_notation("{⇑(w0); ⇑(r0^10000); ⇑(r0)}"), mem, faults="disturb", thresholds=[5000])
     assert r.total.detected == 0
-    # the same with a hammer item on one row: still one activation per row
-    r = grade(parse_notation("{⇑(w0); ⇑hammer(+1)^10000; ⇑(r0)}"), mem, faults="disturb", thresholds=[5000])
+    # the same with a hammer item on one row: one activation per row while no refresh closes
+    # it (the reference engine: the closed form refuses this item on an open-page DRAM)
+    with pytest.raises(FaultSpecError, match="not graded in closed form"):
+        grade(parse_notation("{⇑(w0); ⇑hammer(+1)^10000; ⇑(r0)}"), mem, faults="disturb", thresholds=[5000])
+    small = make_memory(64, 1, mux=8, clock="1GHz", refresh="64ms", page="open")
+    r = grade(parse_notation("{⇑(w0); ⇑hammer(+1)^100; ⇑(r0)}"), small, faults="disturb", thresholds=[50],
+              engine="reference")
     assert r.total.detected == 0
     # with a far row in turn, every round activates the aggressor again (single-sided hammer)
     r = grade(parse_notation("{⇑(w0); ⇑hammer(+1,+9)^5000; ⇑(r0)}"), mem, faults="disturb", thresholds=[5000])
@@ -339,6 +350,24 @@ def test_double_sided_hammer_on_an_open_page(threshold, source, window_ms):
         kinds = {k.kind.text: k.detected for k in r.kinds}
         assert kinds[f"disturb0(N={threshold})"] == (mem.cells if flips else 0), (source, n)
         assert kinds[f"disturb1(N={threshold})"] == 0               # the cells hold 0
+
+
+def test_refresh_closes_the_open_row():
+    # common practice, no source: one bank holds one open row, and refreshing any row closes
+    # it, so on an open page the next access to the same row activates it again.  Here a row
+    # is read 3000 times in a row (one element visit, open page) on 8 rows refreshed every
+    # P = 100 cycles: between two refreshes of a victim row, the other rows' 7 refreshes and
+    # the victim's own (after which the count restarts at the next access) give its neighbour
+    # exactly 8 activations — so threshold 8 flips it and 9 never does; a closed page
+    # activates on every read
+    mem = make_memory(8, 1, mux=1, clock="1GHz", refresh="100ns", page="open")
+    t = parse_notation("{⇑(w0); ⇑(r0^3000); ⇑(r0)}")
+    for n, flips in ((8, True), (9, False)):
+        fast = grade(t, mem, faults="disturb", thresholds=[n])
+        ref = grade(t, mem, faults="disturb", thresholds=[n], engine="reference")
+        assert fast.total.detected == ref.total.detected == (8 if flips else 0), n
+    closed = make_memory(8, 1, mux=1, clock="1GHz", refresh="100ns", page="closed")
+    assert grade(t, closed, faults="disturb", thresholds=[9]).total.detected == 8
 
 
 def test_refresh_faster_than_the_hammer_protects():

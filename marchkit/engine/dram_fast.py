@@ -376,8 +376,19 @@ class DramEngine:
             raise FaultSpecError(
                 f"disturb threshold {N} is below the {m} rows the hammer item cycles through; the closed "
                 "form needs a threshold of at least that many activations (use --engine reference)")
-        first_act = True if p.mem.page == "closed" else bool(rows[0, 0] != st["open"])
+        if p.mem.page == "closed":
+            first_act = True
+        else:
+            _, _, act_first, act_steady = self._hammer_rows(seg)
+            if p.plan.period and not (act_steady.all() and act_first.ravel()[1:].all()):
+                raise FaultSpecError(
+                    "a hammer item that activates the open row again (the same row twice in a row) on a "
+                    "DRAM with an open page is not graded in closed form — a refresh in between closes the "
+                    "row and the access opens it again; use --engine reference, or offsets that differ "
+                    "from one activation to the next")
+            first_act = bool(rows[0, 0] != st["open"]) or bool(p.plan.count_all(st["last_t"], seg.start) > 0)
         st["open"] = int(rows[-1, -1])
+        st["last_t"] = seg.start + seg.cycles - seg.row_cycle
         for side, d in ((0, 1), (1, -1)):
             key = ("disth", seg.start, side, first_act)
             if key not in p.cache:
@@ -455,7 +466,7 @@ class DramEngine:
 
         def fresh():
             return {"cnt": np.zeros((2, rows), np.int64), "ct": np.zeros((2, rows), np.int64),
-                    "fl": np.full((2, rows), -1, np.int64), "open": -1}
+                    "fl": np.full((2, rows), -1, np.int64), "open": -1, "last_t": -1}
 
         return self._scan(kind, lambda seg, tf, seq, st: self._dist_seg(seg, tf, seq, st, N), fresh,
                           kind.drf_value, ham_fn=lambda seg, st: self._dist_hammer(seg, st, N))
@@ -465,10 +476,13 @@ class DramEngine:
         n = p.n
         br, p0, p1, blk = self._blocks("distb", seq, p.row)
         if p.mem.page == "open":
-            first_act = bool(br[0] != st["open"])     # later blocks always change row
+            # later blocks always change row; the first one opens its row again when another
+            # row is open or a refresh closed the row since the last access
+            first_act = bool(br[0] != st["open"]) or bool(p.plan.count_all(st["last_t"], seg.start) > 0)
         else:
             first_act = None
         st["open"] = int(br[-1])
+        st["last_t"] = seg.start + seg.cycles - seg.runs[-1].each
         flb = np.full(br.size, -1, np.int64)
         for side, d in ((0, 1), (1, -1)):      # side 0: aggressor below (v = r + 1); side 1: above
             key = ("dist", seg.start, int(seq[0]), int(seq[-1]), side, first_act)
@@ -533,9 +547,13 @@ class DramEngine:
                      + _copies_in(seg, vb, vb, pe))
             w = np.where(ja == jb, same, split)
         else:
+            # open page: a block opens its row once, and again after every refresh (of any
+            # row: it closes the open row) between its first and its last operation
             act = np.ones(br.size, bool)
             act[0] = first_act
-            w = np.where((jp == 0) & act[vi][rep], 1, 0).astype(np.int64)
+            ptl = tl_b[vi][rep]
+            w = (np.where((jp == 0) & act[vi][rep], 1, 0).astype(np.int64)
+                 + plan.count_all(np.maximum(pb, ps - 1), np.minimum(ptl, pe - 1)))
         nb = br.size
         ev_v = np.concatenate([pv, br])
         ev_s = np.concatenate([ps, base_b])

@@ -12,8 +12,9 @@ Refresh (``refresh``: the period P, rounded up to whole cycles):
   ``r·row_cycle + k·P``.
 
 A refresh takes no cycle of the test (the controller hides it between operations); it
-restores the row it refreshes and leaves the open row open (for read disturb it resets the
-refreshed row's own counts and does not count as an activation of a neighbour).  With
+restores the row it refreshes and, one bank holding one row at a time, closes the open row:
+with an open page the next access activates its row again (for read disturb a refresh resets
+the refreshed row's own counts and does not count as an activation of a neighbour).  With
 ``refresh_during_delays`` off
 (the default, as in a retention test) a refresh that falls inside a delay of the test does
 not happen; slots outside delays are unchanged.
@@ -23,7 +24,7 @@ period must leave room to refresh every row (``P ≥ rows × row cycle``).
 
 Page policy (``page``): ``closed`` — every access activates its row (precharge after each
 access); ``open`` — the row stays open after an access, and an access activates its row only
-when another row (or none, at the start) is open.  One bank: the whole array.
+when another row (or none: at the start, after a refresh) is open.  One bank: the whole array.
 """
 
 from __future__ import annotations
@@ -137,6 +138,7 @@ class RefreshPlan:
 
     def __init__(self, mem, sched):
         self.period = refresh_period_cycles(mem)
+        self.rows, self.rc, self.scheme = mem.rows, row_cycle(mem), mem.refresh_scheme
         self.offsets = refresh_offsets(mem) if self.period else np.zeros(mem.rows, np.int64)
         self.windows = suspended_windows(mem, sched) if self.period else []
         # the active stretches between suspended windows: [a, b)
@@ -198,6 +200,33 @@ class RefreshPlan:
             ok = (last >= a) & (hi >= a)
             out = np.where(ok, np.maximum(out, last), out)
         return out
+
+    def _all_upto(self, t):
+        """Refresh slots of every row at or before cycle ``t`` (ignoring suspension); 0 for
+        t < 0.  Distributed: the slots of all rows are ⌊k·P/rows⌋, k ≥ 0; burst: r·row cycle
+        + k·P, r < rows."""
+        t = np.asarray(t, np.int64)
+        P, R = self.period, self.rows
+        if self.scheme == "burst":
+            full = (t // P) * R
+            part = np.minimum(R, (t % P) // self.rc + 1)
+            out = full + part
+        else:
+            out = -(-((t + 1) * R) // P)            # ceil((t + 1)·R / P)
+        return np.where(t >= 0, out, 0)
+
+    def count_all(self, ta, tb) -> np.ndarray:
+        """Refresh slots of any row that happen in (ta, tb] (int64, broadcast shape)."""
+        ta = np.asarray(ta, np.int64)
+        tb = np.asarray(tb, np.int64)
+        if not self.period:
+            return np.zeros(np.broadcast(ta, tb).shape, np.int64)
+        total = np.zeros(np.broadcast(ta, tb).shape, np.int64)
+        for a, b in self.active:
+            hi = np.minimum(tb, b - 1)
+            lo = np.maximum(ta, a - 1)
+            total += np.where(hi > lo, self._all_upto(hi) - self._all_upto(lo), 0)
+        return total
 
     def slots(self, row: int, t0: int, t1: int) -> list[int]:
         """Every refresh of ``row`` in [t0, t1), in order (literal; for small spans)."""
