@@ -33,8 +33,9 @@ from marchkit.notation.printer import format_notation
 
 SETTINGS = settings(max_examples=60, deadline=None, print_blob=True,
                     suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large])
+# the hammer-item runs (200 to 400 more examples were run by hand)
 FEWER = settings(SETTINGS, max_examples=30,
-                 suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large, HealthCheck.filter_too_much])     # the hammer-item runs (200 to 400 more were run by hand)
+                 suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large, HealthCheck.filter_too_much])
 
 
 # ---------------------------------------------------------------------------------------
