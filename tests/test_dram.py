@@ -30,6 +30,7 @@ from marchkit.model import make_memory, schedule
 from marchkit.model.dram import RefreshPlan, refresh_period_cycles
 from marchkit.notation import Delay, Element, Hammer, MarchTest, Op, check_test, parse_notation
 from marchkit.notation.printer import format_notation
+from test_export import stil_vectors
 
 SETTINGS = settings(max_examples=60, deadline=None, print_blob=True,
                     suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large])
@@ -466,32 +467,9 @@ def test_cli_dram_grade_and_bad_input(cli):
 # export of hammer-length repeats
 
 def _stil_loops(path):
-    """(repeat, V text) pairs read back by the independent parser semi-ate-stil."""
-    mod = pytest.importorskip("Semi_ATE.STIL.parsers.STILParser")
-    p = mod.STILParser(str(path))
-    tree = p.parse_syntax()
-    assert tree is not None, p.err_msg
-    p.parse_semantic()
-    assert p.is_parsing_done, p.err_msg
-    out = []
-
-    def walk(node, repeat):
-        for st in node.children:
-            if not hasattr(st, "data"):
-                continue
-            name = str(st.data)
-            if name.endswith("__v_stmt"):
-                blocks = list(st.find_pred(lambda t: str(t.data).endswith("__vec_data_block")))
-                out.append((repeat, tuple((str(b.children[0]), str(b.children[1])) for b in blocks)))
-            elif name.endswith("__l_stmt"):
-                count = int(next(tok for tok in st.children if str(getattr(tok, "type", "")).endswith("LOOP_COUNT")))
-                walk(st, repeat * count)
-            elif name.endswith("pattern_statement") or name == "pattern_block":
-                walk(st, repeat)
-
-    for pb in tree.find_data("pattern_block"):
-        walk(pb, 1)
-    return out
+    """(repeat, {signal: characters}) pairs read back by the independent parser semi-ate-stil
+    (the reader of tests/test_export.py)."""
+    return stil_vectors(path)
 
 
 @pytest.mark.parametrize("read_cycles", [1, 2])
