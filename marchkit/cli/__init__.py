@@ -56,9 +56,24 @@ def main(argv=None) -> int:
 
 
 def entry() -> None:  # pragma: no cover
+    import signal
+
     try:
         code = main()
+        _flush()
     except KeyboardInterrupt:
         sys.stderr.write("interrupted\n")
         code = 130
+    # The work is done and its output flushed.  Python restores the default SIGINT action
+    # while it shuts down, so a Ctrl-C arriving now would kill the process silently with
+    # -SIGINT after a complete run; ignoring it keeps the exit status the run earned.
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
     sys.exit(code)
+
+
+def _flush() -> None:
+    for stream in (sys.stdout, sys.stderr):
+        try:
+            stream.flush()
+        except (OSError, ValueError):
+            pass
