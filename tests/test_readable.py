@@ -114,6 +114,100 @@ def test_compare_terminal_and_html_use_the_same_labels(cli, monkeypatch, tmp_pat
     assert code == 0 and "cov %" in out and "front = Pareto front" in " ".join(out.split())
 
 
+# ---- free text at 80 columns: hanging indents, nothing split that belongs together ----------------
+
+def _cells(line: str) -> int:
+    from rich.cells import cell_len     # the width a terminal gives the line (rich's own measure)
+
+    return cell_len(line)
+
+
+def _continued(out: str, label: str, indent: int | None = None) -> list[str]:
+    """The line starting with ``label`` and the lines that continue it (indented by
+    ``indent``, by default the label's width)."""
+    lines = out.splitlines()
+    k = next(i for i, ln in enumerate(lines) if ln.startswith(label))
+    block = [lines[k]]
+    for ln in lines[k + 1:]:
+        if not ln.startswith(" " * (len(label) if indent is None else indent)) or not ln.strip():
+            break
+        block.append(ln)
+    return block
+
+
+def test_grade_free_text_hangs_under_its_label_at_80_columns(cli, monkeypatch):
+    # common practice, no source: a wrapped line of a labelled fact continues under the text,
+    # not at the margin, and a number keeps its unit ("400 MHz")
+    from pathlib import Path
+
+    root = Path(__file__).resolve().parents[1]
+    monkeypatch.setenv("COLUMNS", "80")
+    code, out, err = cli("grade", f"{root / 'examples' / 'dram.march'}:Corvid double-sided hammer",
+                         "--memory", str(root / "examples" / "corvid_dram.toml"), "--page", "open",
+                         "--faults", "disturb,DRF", "--missed", "2")
+    assert code == 0, err
+    assert all(_cells(ln) <= 80 for ln in out.splitlines())
+    # the title: the notation moves below the name when the whole line does not fit
+    lines = out.splitlines()
+    assert lines[0] == "Corvid double-sided hammer  4n + 280000 act/row"
+    assert lines[1] == "  {⇑(w0); ⇑hammer(-1,+1)^70000; ⇑(r0,w1); ⇓hammer(-1,+1)^70000; ⇓(r1)}"
+    memory = _continued(out, "memory  ")
+    assert len(memory) == 3 and all(ln.startswith(" " * 8) and ln[8] != " " for ln in memory[1:])
+    assert "400 MHz" in " ".join(memory) and not any(ln.endswith(" 400") for ln in memory)
+    why = _continued(out, "  disturb: ")
+    assert len(why) > 1 and all(ln.startswith(" " * 11) for ln in why[1:])
+    cost = _continued(out, "cost    ")
+    assert " ".join(x.strip() for x in cost).endswith("718.1 ms at 400 MHz")
+    # the faults line keeps each label with its value
+    faults = " | ".join(_continued(out, "faults  "))
+    assert "engine fast" in faults and "pairs neighbours" in faults
+
+
+def test_wrapped_lines_keep_labels_whole_at_narrow_widths(cli, monkeypatch):
+    for cols in ("80", "60", "50"):
+        monkeypatch.setenv("COLUMNS", cols)
+        code, out, err = cli("grade", "IFA-9", "--faults", "all", "--words", "16")
+        assert code == 0, err
+        assert all(_cells(ln) <= int(cols) for ln in out.splitlines()), cols
+        # element labels ("M3 ⇓(r0,w1)") and "at 100 MHz" are never cut in two
+        assert not re.search(r"\bM\d+$", out, re.M), cols
+        assert not re.search(r"\b100$", out, re.M), cols
+        # every "why" line that continues is indented past the class name
+        why = out[out.index("why some are missed:"):].splitlines()[1:]
+        for ln in why:
+            if ln.startswith("cost") or ln.startswith("first =") or not ln.startswith("  "):
+                break
+            assert ln.startswith("  ") and ln[2] != " " or ln.startswith(" " * 6), (cols, ln)
+
+
+def test_demo_next_commands_stay_whole(cli, monkeypatch):
+    monkeypatch.setenv("COLUMNS", "80")
+    code, out, err = cli("demo")
+    assert code == 0, err
+    tail = _continued(out, "Next: ")
+    assert [ln[6:].rstrip(" ·") for ln in tail] == [
+        "marchkit library", "marchkit grade 'March C-' --words 256 --faults all --pairs all",
+        "marchkit grade --help"]
+
+
+def test_a_long_file_name_does_not_push_the_text_to_the_right(cli, monkeypatch, tmp_path):
+    from pathlib import Path
+
+    monkeypatch.setenv("COLUMNS", "80")
+    monkeypatch.chdir(tmp_path)
+    for folder in ("a" * 20, "b" * 50):         # the text beside the name, or below it
+        deep = Path(folder) / "die31_bitmap.csv"
+        deep.parent.mkdir()
+        deep.write_text("row,col\n3,5\n3,9\n")
+        code, out, err = cli("repair", "--bitmap", str(deep), "--rows", "16", "--cols", "16",
+                             "--spare-rows", "1", "--spare-cols", "1")
+        assert code == 0, err
+        first = _continued(out, str(deep), indent=2)
+        assert len(first) >= 2 and all(ln.startswith("  ") and ln[2] != " " for ln in first[1:])
+        assert "2 failing cells in a 16 × 16 array; spares 1 row + 1 column" in " ".join(x.strip() for x in first)
+        assert all(_cells(ln) <= 80 for ln in out.splitlines())
+
+
 # ---- testbench logs: one base per kind of number --------------------------------------------------
 
 def _tool(name):

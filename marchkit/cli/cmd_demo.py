@@ -17,17 +17,19 @@ def run(args) -> int:
     from ..grade import grade
     from ..model import make_memory
     from .cmd_grade import show_result
-    from .common import DEMO_DRAM, DEMO_MEMORY, DEMO_RETENTION, DEMO_THRESHOLDS, console, load_test
+    from .common import DEMO_DRAM, DEMO_MEMORY, DEMO_RETENTION, DEMO_THRESHOLDS, console, hang, load_test
 
     con = console()
     mem = make_memory(**DEMO_MEMORY)
-    con.print("[bold]marchkit demo[/bold] — the Kestrel-7 sensor hub's L1 data SRAM (an invented part)\n")
+    hang(con, "[bold]marchkit demo[/bold] — ", "the Kestrel-7 sensor hub's L1 data SRAM (an invented part)")
+    con.print()
     for name in ("March C-", "March SS"):
         res = grade(load_test(name), mem, "static,classic,retention", "neighbours")
         show_result(res, con)
         con.print()
-    con.print("[bold]and a DRAM[/bold] — the Corvid-3 accelerator's embedded DRAM (invented): 64 K × 16, "
-              "512 rows, refresh every 64 ms, suspended during the test's pauses\n")
+    hang(con, "[bold]and a DRAM[/bold] — ", "the Corvid-3 accelerator's embedded DRAM (invented): 64 K × 16, "
+         "512 rows, refresh every 64 ms, suspended during the test's pauses")
+    con.print()
     dram = make_memory(**DEMO_DRAM)
     from ..model import with_changes
     from ..notation import parse_notation
@@ -42,6 +44,8 @@ def run(args) -> int:
                     retention=[Fraction(x) for x in DEMO_RETENTION], thresholds=DEMO_THRESHOLDS)
         show_result(res, con)
         con.print()
-    con.print("Next: marchkit library · marchkit grade 'March C-' --words 256 --faults all --pairs all · "
-              "marchkit grade --help")
+    nexts = ("marchkit library", "marchkit grade 'March C-' --words 256 --faults all --pairs all",
+             "marchkit grade --help")
+    # each command whole on its line when the line wraps
+    hang(con, "Next: ", " · ".join(c.replace(" ", "\u00a0") for c in nexts))
     return 0

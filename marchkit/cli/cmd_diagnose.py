@@ -85,6 +85,7 @@ def show(d, con, top=10, members=6) -> None:
     from ..diagnose.diagnosis import member_text
     from ..notation import format_notation
     from .cmd_grade import memory_line
+    from .common import hang, title_line
 
     mem = d.memory
 
@@ -97,7 +98,7 @@ def show(d, con, top=10, members=6) -> None:
             g.add_row(label, text)
         con.print(g)
 
-    con.print(f"[bold]{e(d.test.display_name)}[/bold]   {format_notation(d.test)}")
+    title_line(con, d.test.display_name, "", format_notation(d.test))
     nc = len(d.log.cells(mem.bits))
     nw = len(d.log.words())
     head = [("memory", e(memory_line(mem))),
@@ -113,10 +114,10 @@ def show(d, con, top=10, members=6) -> None:
     head.append(("faults", f"{e(str(d.faults_spec))}   pairs {e(str(d.pairs_spec))}"))
     facts(head)
     if not d.candidates:
-        con.print("no candidate fault of the listed kinds involves the failing cells")
+        hang(con, "", "no candidate fault of the listed kinds involves the failing cells")
     else:
-        con.print("candidates: one row per equivalence class (faults this test cannot tell apart); "
-                  "ties share a rank")
+        hang(con, "candidates: ", "one row per equivalence class (faults this test cannot tell apart); "
+             "ties share a rank")
         t = Table(show_edge=False, pad_edge=False)
         t.add_column("rank", justify="right")
         t.add_column("mismatches", justify="right")
@@ -131,9 +132,9 @@ def show(d, con, top=10, members=6) -> None:
         con.print(t)
         if len(d.candidates) > top:
             con.print(f"[dim]… {len(d.candidates) - top} more classes (--top N)[/dim]")
-        con.print("[dim]mismatches: compares where the fault's predicted fails differ from the log; members: "
-                  "fault primitive <S/F/R> or fault name, then its cells: wW.bB is word W (decimal) bit B, "
-                  "a= the aggressor, v= the victim[/dim]")
+        hang(con, "", "[dim]mismatches: compares where the fault's predicted fails differ from the log; members: "
+             "fault primitive <S/F/R> or fault name, then its cells: wW.bB is word W (decimal) bit B, "
+             "a= the aggressor, v= the victim[/dim]")
     rest = []
     cons = d.consistent
     if cons:

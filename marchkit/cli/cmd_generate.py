@@ -85,7 +85,7 @@ def run(args) -> int:
     from ..errors import InputError
     from ..generate import generate, shorten
     from ..notation import format_file, format_notation
-    from .common import console, load_test, memory_from_args, retention_from_args
+    from .common import console, hang, load_test, memory_from_args, retention_from_args, title_line
 
     from ..plan.cluster import MAX_LOCAL_WORKERS
 
@@ -138,25 +138,25 @@ def run(args) -> int:
 
     con = console()
     t = res.test
-    con.print(f"[bold]{e(t.name)}[/bold]  {t.length_text}   {format_notation(t)}")
+    title_line(con, t.name, t.length_text, format_notation(t))
     if res.origin == "like":
-        con.print(f"shortened {e(args.like)} to {res.length}n, keeping every detection "
-                  f"({_n(res.nodes, 'candidate test')} graded); not proven minimal")
+        hang(con, "shortened ", f"{e(args.like)} to {res.length}n, keeping every detection "
+             f"({_n(res.nodes, 'candidate test')} graded); not proven minimal")
     elif res.proven_minimal:
-        con.print(f"proven minimal: every test shorter than {res.length}n in the search space was ruled out "
-                  f"({_n(res.nodes, 'node')}, {_n(res.keys, 'fault key')})")
+        hang(con, "proven minimal: ", f"every test shorter than {res.length}n in the search space was ruled out "
+             f"({_n(res.nodes, 'node')}, {_n(res.keys, 'fault key')})")
     else:
         why = f" — {res.stopped}" if res.stopped else ""
-        con.print(f"not proven minimal: lower bound {res.lower_bound}n reached{why} ({_n(res.nodes, 'node')})")
+        hang(con, "not proven minimal: ", f"lower bound {res.lower_bound}n reached{e(why)} ({_n(res.nodes, 'node')})")
     g = res.grade
-    con.print(f"confirmed on the memory: {g.total.detected:,} of {g.total.instances:,} fault instances detected "
-              f"({100 * g.total.coverage:.2f} %)")
+    hang(con, "confirmed on the memory: ", f"{g.total.detected:,} of {g.total.instances:,} fault instances detected "
+         f"({100 * g.total.coverage:.2f}\u00a0%)")
     for f, where, reason in res.excluded[:10]:
-        con.print(f"excluded {f} ({where}): {reason}", markup=False)
+        hang(con, e(f"excluded {f} ({where}): "), e(reason), indent=2)
     if len(res.excluded) > 10:
         con.print(f"... and {len(res.excluded) - 10} more excluded keys")
     for f, reason in res.unsupported:
-        con.print(f"not searched {f}: {reason}", markup=False)
+        hang(con, e(f"not searched {f}: "), e(reason), indent=2)
     if res.origin == "like":
         con.print(f"[dim]{res.seconds:.3g} s[/dim]")
     else:

@@ -183,24 +183,26 @@ def show_result(res, con, primitives=False, weights=None, score=None) -> None:
     from ..notation import format_notation
     from ..report import labels as L
     from ..report.compare import percent_text
+    from .common import hang, title_line
 
     t = res.test
     width = con.width
     medium, narrow = width < 120, width < 72
-    con.print(f"[bold]{t.display_name}[/bold]  {t.length_text}   {format_notation(t)}")
-    con.print(f"memory  {memory_line(res.memory)}")
+    title_line(con, t.display_name, t.length_text, format_notation(t))
+    hang(con, "memory  ", memory_line(res.memory))
     if res.memory.mux == 1 and res.memory.words > 1:
-        con.print("[dim]        without --mux the array is one column wide: each cell's neighbours are "
-                  "the words above and below[/dim]")
+        hang(con, "        ", "[dim]without --mux the array is one column wide: each cell's neighbours are "
+             "the words above and below[/dim]")
     taus = sorted({r.kind.tau for r in res.kinds if r.kind.tau is not None})
     tau_txt = ""
     if taus:
         from ..faults import format_seconds
 
-        tau_txt = "   retention τ " + ", ".join(format_seconds(x) for x in taus)
-    con.print(f"faults  {res.faults_spec}   pairs {res.pairs_spec}{tau_txt}   engine {res.engine}")
+        tau_txt = "   retention\u00a0τ\u00a0" + ", ".join(format_seconds(x) for x in taus)
+    # a label stays with its value (no-break spaces) when the line wraps
+    hang(con, "faults  ", f"{res.faults_spec}   pairs\u00a0{res.pairs_spec}{tau_txt}   engine\u00a0{res.engine}")
     if medium:
-        con.print("elements " + "  ".join(element_label(t, i).replace(" ", "\u00a0") for i in range(len(t.elements))))
+        hang(con, "elements ", "  ".join(element_label(t, i).replace(" ", "\u00a0") for i in range(len(t.elements))))
     table = Table(show_edge=False, pad_edge=False, box=box.SIMPLE_HEAD if narrow else box.HEAVY_HEAD,
                   title=L.SECTIONS["classes"], title_justify="left", title_style="bold")
     table.add_column(L.CLASS, style="bold", no_wrap=True)
@@ -238,15 +240,15 @@ def show_result(res, con, primitives=False, weights=None, score=None) -> None:
                   pct(tot.coverage, tot.detected, tot.instances), "", "", *([] if medium else [""]))
     con.print(table)
     if score is not None:
-        con.print(score_line(score, weights or {}, res.classes))
+        hang(con, "score   ", score_line(score, weights or {}, res.classes)[len("score   "):])
     if narrow:
         con.print(f"[dim]{L.narrow(L.FIRST)} = {L.FIRST}; {L.narrow(L.ALL)} = {L.ALL}[/dim]")
     if reasons:
         con.print(f"{L.WHY}:")
         for cls, why in reasons:
-            con.print(f"  [bold]{cls}[/bold]: {why}")
+            hang(con, f"  [bold]{cls}[/bold]: ", why)
     if res.empty_classes:
-        con.print(f"no instances in this pair scope: {', '.join(res.empty_classes)}")
+        hang(con, "no instances in this pair scope: ", ", ".join(res.empty_classes))
     if primitives and res.primitives:
         pt = Table(title=L.SECTIONS["kinds"], title_justify="left", title_style="bold", show_edge=False, pad_edge=False)
         cols = tuple(c for c in L.GRADE_KIND_COLUMNS if not (medium and c == L.WHY))
@@ -260,9 +262,9 @@ def show_result(res, con, primitives=False, weights=None, score=None) -> None:
         con.print(pt)
     examples = res.missed_examples()
     if examples:
-        con.print(f"[bold]{L.SECTIONS['missed']}[/bold]: some undetected instances (an engineer's starting point "
-                  "for diagnosis)")
+        hang(con, f"[bold]{L.SECTIONS['missed']}[/bold]: ", "some undetected instances (an engineer's starting "
+             "point for diagnosis)")
         for cls, text in examples:
-            con.print(f"  [bold]{cls}[/bold]  {text}")
-    con.print(f"cost    {L.cost_text(t, res.memory, res.ops, res.cycles, res.seconds)}")
+            hang(con, f"  [bold]{cls}[/bold]  ", text)
+    hang(con, "cost    ", L.cost_text(t, res.memory, res.ops, res.cycles, res.seconds))
     con.print(f"[dim]graded {res.total.instances:,} fault instances in {res.elapsed:.3g} s[/dim]")

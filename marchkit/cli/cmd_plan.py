@@ -150,21 +150,23 @@ def show_plan(data: dict, con) -> None:
     from rich.table import Table
 
     from ..report.compare import format_frequency
+    from .common import hang
 
     inst = data["instances"]
     types = data["types"]
     groups = data["groups"]
     domains = sorted({i["domain"] for i in inst})
     ntypes = len({t['type'] for t in types})
-    con.print(f"[bold]{e(data['soc'])}[/bold]: {len(inst)} memor{'y' if len(inst) == 1 else 'ies'} of {ntypes} "
+    hang(con, f"[bold]{e(data['soc'])}[/bold]: ", f"{len(inst)} memor{'y' if len(inst) == 1 else 'ies'} of {ntypes} "
               f"type{'' if ntypes == 1 else 's'}, {len(groups)} BIST group{'' if len(groups) == 1 else 's'}, "
               f"{len(domains)} clock domain{'s' if len(domains) != 1 else ''}")
     s = data["schedule"]
-    con.print(f"faults {e(data['faults'])}   pairs {e(data['pairs'])}   power budget {fmt_w(s['budget_w'])}")
+    hang(con, "faults ", f"{e(data['faults'])}   pairs\u00a0{e(data['pairs'])}   "
+         f"power\u00a0budget\u00a0{fmt_w(s['budget_w'])}")
     g = data["graded"]
     if g["computed"]:
-        con.print(f"graded {g['jobs']} test × memory pairs: {g['computed']} on {g['workers']}, "
-                  f"{g['cached']} from the cache ({g['seconds']:.3g} s)")
+        hang(con, "graded ", f"{g['jobs']} test × memory pairs: {g['computed']} on {g['workers']}, "
+             f"{g['cached']} from the cache ({g['seconds']:.3g} s)")
     else:
         con.print(f"graded {g['jobs']} test × memory pairs: all from the cache ({g['seconds']:.3g} s)")
 
@@ -179,21 +181,21 @@ def show_plan(data: dict, con) -> None:
                   fmt_s(ty["seconds"]) if ty["seconds"] else "—", fmt_w(ty["power_w"]))
     _keep_numbers(t, con)
     con.print(t)
-    con.print("[dim]n: instances of the type; each: test time of one instance; power: drawn while its "
-              "test runs; m8: column mux 8[/dim]")
+    hang(con, "", "[dim]n: instances of the type; each: test time of one instance; power: drawn while its "
+         "test runs; m8: column mux 8[/dim]")
     short = [ty for ty in types if not ty["meets"]]
     if short:
         con.print("[bold red]requirements no candidate meets[/bold red]")
         con.print("(these memories would ship less tested than required)")
         for ty in short:
             for u in ty["unmet"]:
-                con.print(f"  {e(ty['type'])} at {format_frequency(ty['clock_hz'])}: {u['class']} ≥ "
-                          f"{u['required']:g} % — best {_pct(u['best'])} % ({e(str(u['best_test']))})")
+                hang(con, f"  {e(ty['type'])} at {format_frequency(ty['clock_hz'])}: ", f"{u['class']} ≥ "
+                     f"{u['required']:g} % — best {_pct(u['best'])} % ({e(str(u['best_test']))})", indent=4)
     status = s["status"]
     how = ("optimal" if status == "optimal" else
            f"feasible; lower bound {fmt_s(s['lower_bound_s'])}, gap {100 * s['gap']:.1f} %")
-    con.print(f"[bold]total test time {fmt_s(data['total_test_time_s'])}[/bold]  ({how}; {s['solver']}, "
-              f"{s['solve_seconds']:.2g} s)")
+    hang(con, f"[bold]total test time {fmt_s(data['total_test_time_s'])}[/bold]  ", f"({how}; {s['solver']}, "
+         f"{s['solve_seconds']:.2g} s)", indent=2)
     con.print(f"peak power {fmt_w(s['peak_w'])} of {fmt_w(s['budget_w'])}")
 
     by_group: dict = {}

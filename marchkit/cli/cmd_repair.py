@@ -72,7 +72,7 @@ def run(args) -> int:
     from ..diagnose import bitmap_from_rc
     from ..diagnose.repair import plan_repair
     from ..errors import InputError
-    from .common import console
+    from .common import console, hang
 
     if args.spare_rows < 0 or args.spare_cols < 0:
         raise InputError("--spare-rows and --spare-cols must not be negative")
@@ -104,19 +104,19 @@ def run(args) -> int:
     from rich.markup import escape
 
     con = console()
-    con.print(f"{escape(name)}: {plan.fails:,} failing cell{'s' if plan.fails != 1 else ''} in a {rows} × {cols} array; "
+    hang(con, f"{escape(name)}: ", f"{plan.fails:,} failing cell{'s' if plan.fails != 1 else ''} in a {rows} × {cols} array; "
               f"spares {args.spare_rows} row{'s' if args.spare_rows != 1 else ''} + "
               f"{args.spare_cols} column{'s' if args.spare_cols != 1 else ''}")
     if plan.must_rows or plan.must_cols:
-        con.print(f"must repair: rows {_list(plan.must_rows)}; columns {_list(plan.must_cols)}")
+        hang(con, "must repair: ", f"rows {_list(plan.must_rows)}; columns {_list(plan.must_cols)}")
     if plan.repairable:
-        con.print(f"[bold green]repairable[/bold green] with {plan.spares_used} spare{'s' if plan.spares_used != 1 else ''} "
+        hang(con, "[bold green]repairable[/bold green] ", f"with {plan.spares_used} spare{'s' if plan.spares_used != 1 else ''} "
                   f"(the fewest possible): {len(plan.rows)} row{'s' if len(plan.rows) != 1 else ''}, "
                   f"{len(plan.cols)} column{'s' if len(plan.cols) != 1 else ''}")
-        con.print(f"replace rows    {_list(plan.rows)}")
-        con.print(f"replace columns {_list(plan.cols)}")
+        hang(con, "replace rows    ", _list(plan.rows))
+        hang(con, "replace columns ", _list(plan.cols))
     else:
-        con.print(f"[bold red]NOT repairable[/bold red] with these spares: {plan.reason}")
+        hang(con, "[bold red]NOT repairable[/bold red] ", f"with these spares: {escape(plan.reason)}")
         con.print("do not ship this part")
     if args.picture:
         con.print(f"picture written to {args.picture}", markup=False)

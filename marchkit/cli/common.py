@@ -49,6 +49,80 @@ def console(stderr: bool = False):
     return _Console(file=stream, highlight=False, soft_wrap=False, width=width)
 
 
+_GLUE = None
+
+
+def _break_points(plain: str, room: int) -> list[int]:
+    """Where to cut ``plain`` into lines of at most ``room`` cells: only at plain spaces,
+    never at a no-break space (U+00A0) nor between a number and its unit ("100 MHz")."""
+    import re
+
+    from rich.cells import cell_len
+
+    global _GLUE
+    if _GLUE is None:
+        _GLUE = re.compile(r"(?<=\d) (?=(?:[kMG]?Hz|[mµnp]?s)\b)")
+    glued = {m.start() for m in _GLUE.finditer(plain)}
+    cuts, start, last_space = [], 0, -1
+    for k, ch in enumerate(plain):
+        if ch == " " and k not in glued:
+            last_space = k
+        if cell_len(plain[start:k + 1].rstrip()) > room and last_space > start:
+            cuts.append(last_space + 1)
+            start = last_space + 1
+    return cuts
+
+
+def hang(con, label: str, text: str, indent: int | None = None) -> None:
+    """Print ``label`` followed by ``text`` (both rich markup); lines that wrap start under the
+    text, not at the margin (a hanging indent), so narrow terminals stay readable.  Lines
+    break only at plain spaces; a no-break space in ``text`` glues two words (and prints as
+    a space).  ``indent``: the continuation lines' indent when not the label's width (two
+    for a label longer than 24 cells)."""
+    from rich.text import Text
+
+    lab = Text.from_markup(label)
+    body = Text.from_markup(text)
+    if indent is None and lab.cell_len > 24:     # a long label (a file name): indent by two
+        indent = 2
+    ind = lab.cell_len if indent is None else indent
+    if con.width - ind < 24:                     # too narrow to indent: wrap at the margin
+        con.print(_spaces(Text.assemble(lab, body)))
+        return
+    first_room = con.width - lab.cell_len
+    if first_room >= 24:
+        parts = body.divide(_break_points(body.plain, first_room)[:1])
+        lines, rest = [Text.assemble(lab, parts[0])], (parts[1] if len(parts) > 1 else None)
+    else:                                        # the label fills the line: the text goes below
+        lines, rest = [lab], body
+    if rest is not None and rest.plain.strip():
+        lines += [Text.assemble(" " * ind, piece) for piece in rest.divide(_break_points(rest.plain, con.width - ind))]
+    for line in lines:
+        line.rstrip()
+        con.print(_spaces(line), no_wrap=line.cell_len <= con.width, soft_wrap=line.cell_len > con.width)
+
+
+def _spaces(line):
+    """The no-break spaces that glued words while wrapping, printed as plain spaces."""
+    if "\u00a0" in line.plain:
+        line.plain = line.plain.replace("\u00a0", " ")
+    return line
+
+
+def title_line(con, name: str, length: str, notation: str) -> None:
+    """A test's name, length and notation on one line when it fits; otherwise the notation
+    goes on the lines below, indented (it wraps between elements, never inside a number)."""
+    from rich.text import Text
+
+    head = Text.assemble((name, "bold"), f"  {length}" if length else "")
+    line = Text.assemble(head, f"   {notation}")
+    if line.cell_len <= con.width:
+        con.print(line, no_wrap=True)
+        return
+    con.print(head)
+    hang(con, "  ", notation.replace(" ", "\u00a0").replace(";\u00a0", "; "))
+
+
 def _isatty(stream) -> bool:
     try:
         return stream.isatty()

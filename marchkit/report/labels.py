@@ -75,7 +75,7 @@ def memory_text(mem) -> str:
     scr = ", scrambled" if mem.scramble_bits is not None or mem.scramble_xor else ""
     bgs = background_names(mem)
     return (f"{name}{mem.words} × {mem.bits} bit{'s' if mem.bits > 1 else ''}, mux {mem.mux} "
-            f"({mem.rows} rows × {mem.columns} columns{scr}), order {mem.order}, "
+            f"({mem.rows} row{'s' * (mem.rows != 1)} × {mem.columns} column{'s' * (mem.columns != 1)}{scr}), order {mem.order}, "
             f"background{'s' if len(bgs) > 1 else ''} {', '.join(bgs)}, {format_frequency(mem.clock_hz)}"
             + cycles_text(mem) + latency_text(mem) + dram_text(mem))
 
