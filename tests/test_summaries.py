@@ -185,13 +185,17 @@ def test_check_reports_every_independent_error_and_warns(cli, tmp_path):
     assert out.strip() == f"{bad}: 3 errors, no test read"
     heads = [ln for ln in err.splitlines() if ": error: " in ln]
     assert heads == [f"{bad}:2:16: error: unexpected 'w2'; expected an operation (r0, r1, w0 or w1)",
-                     f"{bad}:4:3: error: unexpected 'lenght'; expected 'note', 'source', 'targets', '{{'",
+                     f"{bad}:4:3: error: unexpected 'lenght'; expected 'length', 'note', 'source', 'targets', '{{'",
                      f"{bad}:7:20: error: unexpected 'r9'; expected an operation (r0, r1, w0 or w1)"]
     ok = tmp_path / "ok.march"
     ok.write_text('test "March C-"\n  targets SAF, CFxx\n  {⇕(w0); ⇑(r0,w1)}\n')
     code, out, err = cli("check", str(ok))
     assert code == 0 and out.strip() == f"{ok}: 1 test, 0 errors, 2 warnings"
-    assert "warning: test 'March C-' has the name of the library's 'March C-' but different elements" in err
-    assert "warning: unknown target 'CFxx'" in err
+    assert f"{ok}:1:6: warning: test 'March C-' has the name of the library's 'March C-' but different elements" in err
+    assert f"{ok}:2:16: warning: unknown target 'CFxx'" in err
+    # the caret sits under the unknown target itself (the lark-style positioned message)
+    lines = err.splitlines()
+    k = lines.index(next(ln for ln in lines if "unknown target 'CFxx'" in ln))
+    assert lines[k + 1] == "      targets SAF, CFxx" and lines[k + 2] == " " * 19 + "^^^^"
     code, out, err = cli("check", "--strict", str(ok))
     assert code == 2

@@ -38,14 +38,15 @@ def _test_warnings(t, spec_is_file: bool) -> list:
         lib = find_in_library(t.name)
         if lib is not None and lib.items != t.items:
             out.append(Diagnostic("warning", f"test {t.name!r} has the name of the library's {lib.name!r} but "
-                                  "different elements; rename it so results cannot be mistaken", t.pos))
+                                  "different elements; rename it so results cannot be mistaken", t.name_pos or t.pos))
     known = _known_targets()
-    for target in t.targets:
+    for k, target in enumerate(t.targets):
         if target.casefold() not in known:
+            where = t.target_pos[k] if k < len(t.target_pos) and t.target_pos[k] else t.pos
             close = difflib.get_close_matches(target, sorted(known), n=1, cutoff=0.6)
             hint = f" (did you mean {close[0]!r}?)" if close else ""
             out.append(Diagnostic("warning", f"unknown target {target!r}{hint}: marchkit grades the classes of "
-                                  "`marchkit faults all`", t.pos))
+                                  "`marchkit faults all`", where))
     return out
 
 

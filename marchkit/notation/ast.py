@@ -146,6 +146,9 @@ class MarchTest:
     note: str = ""
     pos: SourcePos | None = field(default=None, compare=False, repr=False)
     text: str | None = field(default=None, compare=False, repr=False)  # the whole source parsed
+    # where the name and each target were written (files only), for positioned warnings
+    name_pos: SourcePos | None = field(default=None, compare=False, repr=False)
+    target_pos: tuple[SourcePos | None, ...] = field(default=(), compare=False, repr=False)
 
     @property
     def elements(self) -> tuple[Element, ...]:

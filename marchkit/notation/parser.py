@@ -110,7 +110,9 @@ def _describe(term: str) -> str:
 
 
 def _expected_text(names) -> str:
-    descs = sorted({_describe(n) for n in names if not n.startswith("_") and n != "$END"})
+    # lark names a keyword whose upper-case name is taken ("length" beside LENGTH) __ANON_k:
+    # such keywords are shown; other names starting with "_" are the grammar's own
+    descs = sorted({_describe(n) for n in names if (n.startswith("__ANON") or not n.startswith("_")) and n != "$END"})
     if not descs:
         return "the end of the input"
     if len(descs) > 6:
@@ -258,7 +260,7 @@ class _Builder:
         name = _unquote(str(tree.children[0]))
         if not name.strip():
             raise self.err("a test needs a name", tree.children[0])
-        meta: dict = {"name": name}
+        meta: dict = {"name": name, "name_pos": _pos(tree.children[0], self.filename)}
         seen = set()
         notation_tree = None
         for c in tree.children[1:]:
@@ -274,6 +276,7 @@ class _Builder:
                 meta["note"] = _unquote(str(c.children[0]))
             elif c.data == "targets":
                 meta["targets"] = tuple(str(t.children[0]) for t in c.children)
+                meta["target_pos"] = tuple(_pos(t.children[0], self.filename) for t in c.children)
             elif c.data == "length":
                 meta["length"] = re.sub(r"\s+", " ", str(c.children[0]).strip())
         t = self.notation(notation_tree)
