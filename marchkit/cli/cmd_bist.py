@@ -75,9 +75,12 @@ def run(args) -> int:
     if mem.read_latency:
         from ..model import schedule
 
-        out.write(f"read latency {mem.read_latency}: LAT {args.latency}; done rises {args.latency} cycles after the "
-                  f"last operation; grade and export count {schedule(test, mem).cycles:,} cycles (the test ends "
-                  "when the last read's data is back)\n")
+        from .common import console, hang
+
+        out.flush()
+        hang(console(), f"read latency {mem.read_latency}: ", f"LAT {args.latency}; done rises {args.latency} cycles "
+             f"after the last operation; grade and export count {schedule(test, mem).cycles:,} cycles (the test "
+             "ends when the last read's data is back)")
     if res.area is not None:
         a = res.area
         if "skipped" in a:
