@@ -109,7 +109,7 @@ def check_dram(mem) -> None:
             raise ModelError(
                 f"refresh period {seconds_text(mem.refresh)} is {P:,} clock cycle{'s' * (P != 1)}, shorter than "
                 f"refreshing the {mem.rows:,} rows takes ({mem.rows:,} × a row cycle of "
-                f"{row_cycle(mem)} cycles = {need:,}); use a longer period or a faster clock"
+                f"{row_cycle(mem)} cycle{'s' * (row_cycle(mem) != 1)} = {need:,}); use a longer period or a faster clock"
             )
 
 
