@@ -13,7 +13,7 @@ def register(sub):
 
 
 def run(args) -> int:
-    from ..notation import format_file, format_notation
+    from ..notation import format_notation
     from ..notation.printer import format_test_block
     from .common import load_test
 
@@ -21,12 +21,14 @@ def run(args) -> int:
     if args.file_format:
         print(format_test_block(t, ascii=args.ascii))
         return 0
+    from rich.markup import escape
+
+    from .common import console, hang
+
     print(f"{t.display_name}: {t.length_text}")
-    print(format_notation(t, ascii=args.ascii))
-    if t.source:
-        print(f"source: {t.source}")
-    if t.targets:
-        print(f"targets: {', '.join(t.targets)}")
-    if t.note:
-        print(f"note: {t.note}")
+    print(format_notation(t, ascii=args.ascii), flush=True)     # one line, to copy whole
+    con = console()
+    for label, text in (("source: ", t.source), ("targets: ", ", ".join(t.targets)), ("note: ", t.note)):
+        if text:
+            hang(con, label, escape(text))
     return 0
