@@ -7,6 +7,7 @@ function is stored as the parser's default ``func`` and returns the exit status.
 from __future__ import annotations
 
 import argparse
+import signal
 import sys
 
 COMMANDS = ("library", "show", "check", "faults", "grade", "compare", "generate", "export", "bist", "diagnose", "repair", "plan", "demo")
@@ -56,8 +57,6 @@ def main(argv=None) -> int:
 
 
 def entry() -> None:  # pragma: no cover
-    import signal
-
     try:
         code = main()
         _flush()
