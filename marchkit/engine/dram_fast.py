@@ -202,6 +202,11 @@ def _sorted_events(plan, ev_v, ev_s, ev_e, ev_w, ev_piece, ev_slot, ev_blk):
             plan.last_refresh(ev_v, ev_s))
 
 
+def _single_row(rows) -> bool:
+    """Does every visit of a hammer item open one row only (``rows`` (V, m) int64)?"""
+    return bool((rows == rows[:, :1]).all())
+
+
 def _copies_in(seg, base, a, b):
     """Copies of the visit starting at ``base`` with cycle in [a, b) (arrays)."""
     total = np.zeros(np.broadcast(base, a, b).shape, np.int64)
@@ -361,7 +366,11 @@ class DramEngine:
             else:
                 act_steady = rows != np.roll(rows, 1, axis=1)
                 act_first = act_steady.copy()
-                act_first[1:, 0] = rows[1:, 0] != rows[:-1, -1]
+                # a visit that starts on the row the last one ended on opens it again when a
+                # refresh (of any row) closed it in between: the visits follow each other, so
+                # that is a slot in the row cycle up to the visit's first activation
+                act_first[1:, 0] = (rows[1:, 0] != rows[:-1, -1]) | (
+                    p.plan.count_all(base[1:] - seg.row_cycle, base[1:]) > 0)
                 act_first[0, 0] = True
             p.cache[key] = (rows, base, act_first, act_steady)
         return p.cache[key]
@@ -380,12 +389,15 @@ class DramEngine:
             first_act = True
         else:
             _, _, act_first, act_steady = self._hammer_rows(seg)
-            if p.plan.period and not (act_steady.all() and act_first.ravel()[1:].all()):
+            # closed form on an open page with refresh: every activation changes row, or every
+            # round opens a single row (it stays open; a refresh closes it and the next
+            # activation opens it again).  A mix depends on where each slot falls in a round.
+            if p.plan.period and not (act_steady.all() or _single_row(rows)):
                 raise FaultSpecError(
-                    "a hammer item that activates the open row again (the same row twice in a row) on a "
-                    "DRAM with an open page is not graded in closed form — a refresh in between closes the "
-                    "row and the access opens it again; use --engine reference, or offsets that differ "
-                    "from one activation to the next")
+                    "a hammer item whose rounds open the same row twice in a row among other rows, on a "
+                    "DRAM with an open page and refresh, is not graded in closed form — whether a refresh "
+                    "reopens the row depends on where it falls in the round; use --engine reference, or "
+                    "offsets that differ from one activation to the next")
             first_act = bool(rows[0, 0] != st["open"]) or bool(p.plan.count_all(st["last_t"], seg.start) > 0)
         st["open"] = int(rows[-1, -1])
         st["last_t"] = seg.start + seg.cycles - seg.row_cycle
@@ -449,6 +461,12 @@ class DramEngine:
             lo = np.maximum(1, -((t0 - ps) // M))          # first round i ≥ 1 at or after ps
             hi = np.minimum(N - 1, (pe - 1 - t0) // M)
             w += np.where(xS[q, j], np.maximum(0, hi - lo + 1), 0)
+        if p.mem.page == "open" and p.plan.period and _single_row(rows):
+            # each visit opens one row; after its first activation, that row is opened again at
+            # the activation after each refresh slot (it closes the row) up to the visit's last
+            lo = np.maximum(bq, ps - 1)
+            hi = np.minimum(bq + Pa - rc, pe - 1)
+            w += np.where(isX[q, 0], p.plan.count_all(lo, hi), 0)
         qb = np.nonzero(vact)[0]
         ev_v = np.concatenate([V[q], V[qb]])
         ev_s = np.concatenate([ps, t_first[qb]])
