@@ -14,6 +14,8 @@ Prints, each measured in a fresh process (best of N runs of ``marchkit.grade.gra
    times and disturb at the two published thresholds) — target ≤ 10 s.
 3. Hammer items on the same macro with an open page: the time for 10, 70 000 and 10^8 rounds
    and the ratio of the longest to the shortest (closed form in the round count).
+4. Single-row hammer items (``⇑hammer(+1)^N``) on the open page: the row stays open and only
+   refresh reopens it, counted in closed form; 10 and 10^8 rounds.
 """
 
 from __future__ import annotations
@@ -103,6 +105,14 @@ def main():
               f"{r['cycles']:,} cycles")
     print(f"   ratio ^100,000,000 / ^10: {got[100_000_000]['seconds'] / got[10]['seconds']:.2f}  "
           "(closed form: the round count does not enter the cost)")
+    print("4. single-row hammer items (one row per round, open page: each refresh reopens the row)")
+    one = {}
+    for rounds in (10, 100_000_000):
+        test = f"{{⇑(w0); ⇑hammer(+1)^{rounds}; ⇑(r0,w1); ⇓hammer(-1)^{rounds}; ⇓(r1)}}"
+        one[rounds] = r = run(dict(mem=openp, test=test, faults="disturb", thresholds=[139000, 4800]))
+        print(f"   ^{rounds:<11,} {r['seconds']:.2f} s   {r['detected']:,} of {r['instances']:,} detected   "
+              f"{r['cycles']:,} cycles")
+    print(f"   ratio ^100,000,000 / ^10: {one[100_000_000]['seconds'] / one[10]['seconds']:.2f}")
 
 
 if __name__ == "__main__":
