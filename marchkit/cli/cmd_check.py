@@ -40,9 +40,9 @@ def _test_warnings(t, spec_is_file: bool) -> list:
             out.append(Diagnostic("warning", f"test {t.name!r} has the name of the library's {lib.name!r} but "
                                   "different elements; rename it so results cannot be mistaken", t.name_pos or t.pos))
     known = _known_targets()
-    for k, target in enumerate(t.targets):
+    for target, pos in zip(t.targets, t.target_pos or (None,) * len(t.targets)):
         if target.casefold() not in known:
-            where = t.target_pos[k] if k < len(t.target_pos) and t.target_pos[k] else t.pos
+            where = pos or t.pos
             close = difflib.get_close_matches(target, sorted(known), n=1, cutoff=0.6)
             hint = f" (did you mean {close[0]!r}?)" if close else ""
             out.append(Diagnostic("warning", f"unknown target {target!r}{hint}: marchkit grades the classes of "

@@ -185,14 +185,14 @@ def _plain(markup: str) -> str:
 def show_comparison(cmp, con) -> None:
     from rich.table import Table
 
-    from .common import hang
+    from .common import glue, hang
 
     from ..units import format_time
 
     rows = list(cmp.rows)
     n_inst = rows[0].instances if rows else 0
     con.print(f"[bold]{len(rows)} test{'s' if len(rows) != 1 else ''} on {cmp.memory_label}[/bold]")
-    hang(con, "faults  ", f"{cmp.faults_spec} ({n_inst:,}\u00a0instances)   pairs\u00a0{cmp.pairs_spec}")
+    hang(con, "faults  ", f"{cmp.faults_spec} ({glue(f'{n_inst:,} instances')})   {glue('pairs ' + cmp.pairs_spec)}")
     graded = [c for c in cmp.classes if cmp.class_instances.get(c)]
     equal = len({cmp.weights.get(c, 1.0) for c in graded}) <= 1
     hang(con, "score   ", "mean of the per-class coverages, " + ("equal weights" if equal else "weights " + ", ".join(
@@ -247,7 +247,7 @@ def show_comparison(cmp, con) -> None:
     con.print(t)
     if narrow:
         # one legend entry per line part: "x = y" never split
-        hang(con, "", "[dim]" + "; ".join(p.replace(" ", "\u00a0") for p in L.NARROW_LEGEND.split("; ")) + "[/dim]")
+        hang(con, "", "[dim]" + "; ".join(glue(p) for p in L.NARROW_LEGEND.split("; ")) + "[/dim]")
 
     # coverage per class: as many class columns as the console is wide, in several tables
     # when there are more classes than fit

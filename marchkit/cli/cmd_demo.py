@@ -17,7 +17,7 @@ def run(args) -> int:
     from ..grade import grade
     from ..model import make_memory
     from .cmd_grade import show_result
-    from .common import DEMO_DRAM, DEMO_MEMORY, DEMO_RETENTION, DEMO_THRESHOLDS, console, hang, load_test
+    from .common import DEMO_DRAM, DEMO_MEMORY, DEMO_RETENTION, DEMO_THRESHOLDS, console, glue, hang, load_test
 
     con = console()
     mem = make_memory(**DEMO_MEMORY)
@@ -47,5 +47,5 @@ def run(args) -> int:
     nexts = ("marchkit library", "marchkit grade 'March C-' --words 256 --faults all --pairs all",
              "marchkit grade --help")
     # each command whole on its line when the line wraps
-    hang(con, "Next: ", " · ".join(c.replace(" ", "\u00a0") for c in nexts))
+    hang(con, "Next: ", " · ".join(glue(c) for c in nexts))
     return 0

@@ -85,7 +85,7 @@ def run(args) -> int:
     from ..errors import InputError
     from ..generate import generate, shorten
     from ..notation import format_file, format_notation
-    from .common import console, hang, load_test, memory_from_args, retention_from_args, title_line
+    from .common import console, glue, hang, load_test, memory_from_args, retention_from_args, title_line
 
     from ..plan.cluster import MAX_LOCAL_WORKERS
 
@@ -150,7 +150,7 @@ def run(args) -> int:
         hang(con, "not proven minimal: ", f"lower bound {res.lower_bound}n reached{e(why)} ({_n(res.nodes, 'node')})")
     g = res.grade
     hang(con, "confirmed on the memory: ", f"{g.total.detected:,} of {g.total.instances:,} fault instances detected "
-         f"({100 * g.total.coverage:.2f}\u00a0%)")
+         f"({glue(f'{100 * g.total.coverage:.2f} %')})")
     for f, where, reason in res.excluded[:10]:
         hang(con, e(f"excluded {f} ({where}): "), e(reason), indent=2)
     if len(res.excluded) > 10:

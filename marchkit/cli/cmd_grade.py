@@ -166,12 +166,6 @@ def show_retention(res, con, spread_text=None) -> None:
                   f"{100 * expected_caught(rows, sp.taus):.4g}%")
 
 
-def score_line(score, weights, classes) -> str:
-    from ..report.labels import score_text
-
-    return f"score   {score_text(score, weights, classes)}"
-
-
 def show_result(res, con, primitives=False, weights=None, score=None) -> None:
     """The result on the terminal.  The table adapts to the console width: below 120 columns
     the element columns show only ``Mi`` (the elements are listed above the table) and the
@@ -183,7 +177,7 @@ def show_result(res, con, primitives=False, weights=None, score=None) -> None:
     from ..notation import format_notation
     from ..report import labels as L
     from ..report.compare import percent_text
-    from .common import hang, title_line
+    from .common import glue, hang, title_line
 
     t = res.test
     width = con.width
@@ -198,11 +192,11 @@ def show_result(res, con, primitives=False, weights=None, score=None) -> None:
     if taus:
         from ..faults import format_seconds
 
-        tau_txt = "   retention\u00a0τ\u00a0" + ", ".join(format_seconds(x) for x in taus)
-    # a label stays with its value (no-break spaces) when the line wraps
-    hang(con, "faults  ", f"{res.faults_spec}   pairs\u00a0{res.pairs_spec}{tau_txt}   engine\u00a0{res.engine}")
+        tau_txt = "   " + glue("retention τ ") + ", ".join(format_seconds(x) for x in taus)
+    # a label stays with its value when the line wraps
+    hang(con, "faults  ", f"{res.faults_spec}   {glue('pairs ' + res.pairs_spec)}{tau_txt}   {glue('engine ' + res.engine)}")
     if medium:
-        hang(con, "elements ", "  ".join(element_label(t, i).replace(" ", "\u00a0") for i in range(len(t.elements))))
+        hang(con, "elements ", "  ".join(glue(element_label(t, i)) for i in range(len(t.elements))))
     table = Table(show_edge=False, pad_edge=False, box=box.SIMPLE_HEAD if narrow else box.HEAVY_HEAD,
                   title=L.SECTIONS["classes"], title_justify="left", title_style="bold")
     table.add_column(L.CLASS, style="bold", no_wrap=True)
@@ -240,7 +234,7 @@ def show_result(res, con, primitives=False, weights=None, score=None) -> None:
                   pct(tot.coverage, tot.detected, tot.instances), "", "", *([] if medium else [""]))
     con.print(table)
     if score is not None:
-        hang(con, "score   ", score_line(score, weights or {}, res.classes)[len("score   "):])
+        hang(con, "score   ", L.score_text(score, weights or {}, res.classes))
     if narrow:
         con.print(f"[dim]{L.narrow(L.FIRST)} = {L.FIRST}; {L.narrow(L.ALL)} = {L.ALL}[/dim]")
     if reasons:

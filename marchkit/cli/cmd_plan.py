@@ -150,7 +150,7 @@ def show_plan(data: dict, con) -> None:
     from rich.table import Table
 
     from ..report.compare import format_frequency
-    from .common import hang
+    from .common import glue, hang
 
     inst = data["instances"]
     types = data["types"]
@@ -161,8 +161,8 @@ def show_plan(data: dict, con) -> None:
               f"type{'' if ntypes == 1 else 's'}, {len(groups)} BIST group{'' if len(groups) == 1 else 's'}, "
               f"{len(domains)} clock domain{'s' if len(domains) != 1 else ''}")
     s = data["schedule"]
-    hang(con, "faults ", f"{e(data['faults'])}   pairs\u00a0{e(data['pairs'])}   "
-         f"power\u00a0budget\u00a0{fmt_w(s['budget_w'])}")
+    hang(con, "faults ", f"{e(data['faults'])}   {glue('pairs ' + e(data['pairs']))}   "
+         f"{glue('power budget ' + fmt_w(s['budget_w']))}")
     g = data["graded"]
     if g["computed"]:
         hang(con, "graded ", f"{g['jobs']} test × memory pairs: {g['computed']} on {g['workers']}, "

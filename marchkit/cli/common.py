@@ -49,25 +49,31 @@ def console(stderr: bool = False):
     return _Console(file=stream, highlight=False, soft_wrap=False, width=width)
 
 
-_GLUE = None
+# a space between a number and its unit: never a line break ("100 MHz", "6.4 µs")
+_UNIT_SPACE = r"(?<=\d) (?=(?:[kMG]?Hz|[mµnp]?s)\b)"
+
+
+def glue(text: str) -> str:
+    """``text`` with its spaces made no-break: :func:`hang` keeps it on one line."""
+    return text.replace(" ", "\u00a0")
 
 
 def _break_points(plain: str, room: int) -> list[int]:
     """Where to cut ``plain`` into lines of at most ``room`` cells: only at plain spaces,
-    never at a no-break space (U+00A0) nor between a number and its unit ("100 MHz")."""
+    never at a no-break space (U+00A0) nor between a number and its unit."""
     import re
+    from itertools import accumulate
 
-    from rich.cells import cell_len
+    from rich.cells import get_character_cell_size
 
-    global _GLUE
-    if _GLUE is None:
-        _GLUE = re.compile(r"(?<=\d) (?=(?:[kMG]?Hz|[mµnp]?s)\b)")
-    glued = {m.start() for m in _GLUE.finditer(plain)}
+    width = [0, *accumulate(get_character_cell_size(c) for c in plain)]   # cells before each index
+    glued = {m.start() for m in re.finditer(_UNIT_SPACE, plain)}
     cuts, start, last_space = [], 0, -1
     for k, ch in enumerate(plain):
-        if ch == " " and k not in glued:
-            last_space = k
-        if cell_len(plain[start:k + 1].rstrip()) > room and last_space > start:
+        if ch == " ":                   # trailing spaces do not count towards a line's width
+            if k not in glued:
+                last_space = k
+        elif width[k + 1] - width[start] > room and last_space > start:
             cuts.append(last_space + 1)
             start = last_space + 1
     return cuts
@@ -120,7 +126,7 @@ def title_line(con, name: str, length: str, notation: str) -> None:
         con.print(line, no_wrap=True)
         return
     con.print(head)
-    hang(con, "  ", notation.replace(" ", "\u00a0").replace(";\u00a0", "; "))
+    hang(con, "  ", glue(notation).replace(";\u00a0", "; "))
 
 
 def _isatty(stream) -> bool:

@@ -379,7 +379,7 @@ class DramEngine:
         """A hammer segment for read disturb: the events of every victim row (its own
         activations reset its counts; the activations of a neighbour row add to that side)."""
         p = self.p
-        rows, _, _, _ = self._hammer_rows(seg)
+        rows, _, act_first, act_steady = self._hammer_rows(seg)
         m = rows.shape[1]
         if N < m:
             raise FaultSpecError(
@@ -388,7 +388,6 @@ class DramEngine:
         if p.mem.page == "closed":
             first_act = True
         else:
-            _, _, act_first, act_steady = self._hammer_rows(seg)
             # closed form on an open page with refresh: every activation changes row, or every
             # round opens a single row (it stays open; a refresh closes it and the next
             # activation opens it again).  A mix depends on where each slot falls in a round.
@@ -398,7 +397,7 @@ class DramEngine:
                     "DRAM with an open page and refresh, is not graded in closed form — whether a refresh "
                     "reopens the row depends on where it falls in the round; use --engine reference, or "
                     "offsets that differ from one activation to the next")
-            first_act = bool(rows[0, 0] != st["open"]) or bool(p.plan.count_all(st["last_t"], seg.start) > 0)
+            first_act = self._first_opens(st, rows[0, 0], seg.start)
         st["open"] = int(rows[-1, -1])
         st["last_t"] = seg.start + seg.cycles - seg.row_cycle
         for side, d in ((0, 1), (1, -1)):
@@ -489,14 +488,17 @@ class DramEngine:
         return self._scan(kind, lambda seg, tf, seq, st: self._dist_seg(seg, tf, seq, st, N), fresh,
                           kind.drf_value, ham_fn=lambda seg, st: self._dist_hammer(seg, st, N))
 
+    def _first_opens(self, st, row, t) -> bool:
+        """Open page: does the segment's first access (to ``row``, at cycle ``t``) activate its
+        row — another row is open, or a refresh closed the row since the last access?"""
+        return bool(row != st["open"]) or bool(self.p.plan.count_all(st["last_t"], t) > 0)
+
     def _dist_seg(self, seg, tf, seq, st, N):
         p = self.p
         n = p.n
         br, p0, p1, blk = self._blocks("distb", seq, p.row)
         if p.mem.page == "open":
-            # later blocks always change row; the first one opens its row again when another
-            # row is open or a refresh closed the row since the last access
-            first_act = bool(br[0] != st["open"]) or bool(p.plan.count_all(st["last_t"], seg.start) > 0)
+            first_act = self._first_opens(st, br[0], seg.start)     # later blocks always change row
         else:
             first_act = None
         st["open"] = int(br[-1])
